@@ -1,0 +1,31 @@
+"""faultmap: normal-fault traces and a DEM in; throw, scaling, extension, strain,
+rift width and hazard screening out, as GeoPackage layers and figures.
+
+The Python API mirrors the command line: :func:`run_tools` runs named tools,
+:func:`run_project` runs a project (TOML) file. Analyses live in modules named
+for what they compute (``faultmap.prepare``, ``faultmap.throw``...).
+"""
+
+from __future__ import annotations
+
+__version__ = "0.1.0"
+
+from faultmap.errors import FaultmapError
+
+__all__ = ["__version__", "FaultmapError", "run_tools", "run_project", "load_tools"]
+
+
+def __getattr__(name):  # lazy: importing faultmap stays light (no matplotlib, no rasterio)
+    if name == "run_tools":
+        from faultmap.runner import run_tools
+
+        return run_tools
+    if name == "run_project":
+        from faultmap.project import run_project
+
+        return run_project
+    if name == "load_tools":
+        from faultmap.registry import load_tools
+
+        return load_tools
+    raise AttributeError(name)

@@ -1,0 +1,5 @@
+"""``python -m faultmap``."""
+
+from faultmap.cli import main
+
+main()

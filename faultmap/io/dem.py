@@ -1,0 +1,297 @@
+"""Lazy, windowed access to a DEM in any raster format GDAL reads.
+
+Only :func:`open_dem` takes a path. The returned :class:`Dem` keeps the
+metadata and opens the file again for each windowed read, so it is cheap to
+pass around, picklable (it carries the path, never an open dataset) and
+safe to use from several threads.
+
+Pixel convention: the value of row ``i``, column ``j`` is the elevation at the
+pixel centre, ``(x, y) = transform * (j + 0.5, i + 0.5)``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+from scipy import ndimage
+
+from faultmap.errors import CRSError, InputError, InputFileError
+
+__all__ = ["Dem", "open_dem", "COMMON_VOID_VALUES"]
+
+#: Void markers seen in DEMs that carry no nodata tag (common practice).
+COMMON_VOID_VALUES = (-9999.0, -32768.0, -32767.0, -3.4028234663852886e38)
+
+
+@dataclass(frozen=True)
+class Dem:
+    """Metadata of a DEM and windowed reads of its elevations.
+
+    Attributes
+    ----------
+    path : pathlib.Path
+        The raster file.
+    crs : pyproj.CRS or None
+        The raster's CRS.
+    transform : affine.Affine
+        Pixel-corner affine transform (north-up expected).
+    width, height : int
+        Raster size in pixels.
+    nodata : float or None
+        Value treated as void (from the file, or named by the user).
+    z_factor : float
+        Multiplier that turns stored elevations into metres (0.3048 for feet).
+    band : int
+        Band read (1-based).
+    """
+
+    path: Path
+    crs: object
+    transform: object
+    width: int
+    height: int
+    nodata: float | None
+    z_factor: float = 1.0
+    band: int = 1
+    block_shape: tuple[int, int] = (256, 256)
+    _extra_voids: tuple[float, ...] = field(default=(), repr=False)
+
+    # ------------------------------------------------------------------ geometry
+    @property
+    def res(self) -> tuple[float, float]:
+        """Pixel size (x, y) in CRS units (both positive)."""
+        return (abs(self.transform.a), abs(self.transform.e))
+
+    @property
+    def pixel_size(self) -> float:
+        """Mean pixel size in CRS units."""
+        return float(np.sqrt(self.res[0] * self.res[1]))
+
+    @property
+    def bounds(self) -> tuple[float, float, float, float]:
+        """(xmin, ymin, xmax, ymax) of the raster's outer pixel edges."""
+        t = self.transform
+        xs = (t.c, t.c + t.a * self.width)
+        ys = (t.f, t.f + t.e * self.height)
+        return (min(xs), min(ys), max(xs), max(ys))
+
+    @property
+    def nbytes(self) -> int:
+        """Size of the whole band as float64 in memory, bytes."""
+        return int(self.width) * int(self.height) * 8
+
+    def window_for_bounds(self, bounds, pad_pixels: int = 2):
+        """Row/column slices covering ``bounds`` (clipped to the raster).
+
+        Returns ``None`` when the bounds do not overlap the raster.
+        """
+        xmin, ymin, xmax, ymax = bounds
+        inv = ~self.transform
+        cols, rows = inv * (np.array([xmin, xmax, xmin, xmax]), np.array([ymin, ymin, ymax, ymax]))
+        c0 = int(math.floor(np.min(cols))) - pad_pixels
+        c1 = int(math.ceil(np.max(cols))) + pad_pixels
+        r0 = int(math.floor(np.min(rows))) - pad_pixels
+        r1 = int(math.ceil(np.max(rows))) + pad_pixels
+        c0, r0 = max(c0, 0), max(r0, 0)
+        c1, r1 = min(c1, self.width), min(r1, self.height)
+        if c0 >= c1 or r0 >= r1:
+            return None
+        return (slice(r0, r1), slice(c0, c1))
+
+    # ------------------------------------------------------------------ reading
+    def read_rows_cols(self, rows: slice, cols: slice) -> np.ndarray:
+        """Read a window as float64 metres with voids as NaN (never 0)."""
+        import rasterio
+        from rasterio.windows import Window
+
+        win = Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
+        try:
+            with rasterio.open(self.path) as src:
+                arr = src.read(self.band, window=win, out_dtype="float64")
+                mask = src.read_masks(self.band, window=win) == 0
+        except rasterio.errors.RasterioIOError as exc:  # pragma: no cover - disk errors
+            raise InputFileError(f"{self.path}: cannot read DEM window ({exc}).") from exc
+        if self.nodata is not None and not np.isnan(self.nodata):
+            mask |= arr == self.nodata
+        for v in self._extra_voids:
+            mask |= arr == v
+        mask |= ~np.isfinite(arr)
+        arr[mask] = np.nan
+        if self.z_factor != 1.0:
+            arr *= self.z_factor
+        return arr
+
+    def read_window(self, bounds, pad_pixels: int = 2):
+        """Read the elevations covering ``bounds``.
+
+        Parameters
+        ----------
+        bounds : tuple of float
+            (xmin, ymin, xmax, ymax) in the DEM's CRS, metres.
+        pad_pixels : int
+            Extra pixels on each side (for interpolation).
+
+        Returns
+        -------
+        array : ndarray of float64, shape (rows, cols)
+            Elevations in metres, NaN where void; empty (0, 0) when the bounds
+            miss the raster.
+        transform : affine.Affine
+            Pixel-corner transform of the window.
+        """
+        win = self.window_for_bounds(bounds, pad_pixels)
+        if win is None:
+            return np.empty((0, 0)), self.transform
+        rows, cols = win
+        arr = self.read_rows_cols(rows, cols)
+        from rasterio.windows import Window, transform as win_transform
+
+        wt = win_transform(
+            Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start),
+            self.transform,
+        )
+        return arr, wt
+
+    def sample(self, x, y, *, max_window_pixels: int = 4_000_000) -> np.ndarray:
+        """Bilinear elevations at points, NaN outside the raster or in voids.
+
+        The points' bounding box is read in one window when it holds at most
+        ``max_window_pixels`` pixels; otherwise points are grouped into tiles
+        and each tile's window is read once.
+
+        Parameters
+        ----------
+        x, y : array_like of float
+            Coordinates in the DEM's CRS, metres.
+
+        Returns
+        -------
+        ndarray of float64
+            Elevation in metres (after ``z_factor``).
+        """
+        x = np.asarray(x, dtype="float64").ravel()
+        y = np.asarray(y, dtype="float64").ravel()
+        out = np.full(x.shape, np.nan)
+        if x.size == 0:
+            return out
+        inv = ~self.transform
+        col, row = inv * (x, y)
+        # pixel centres sit at half-integers: shift to array index space
+        col = col - 0.5
+        row = row - 0.5
+        inside = (col > -0.5) & (col < self.width - 0.5) & (row > -0.5) & (row < self.height - 0.5)
+        inside &= np.isfinite(col) & np.isfinite(row)
+        if not inside.any():
+            return out
+        tile = max(64, int(math.sqrt(max_window_pixels)))
+        ci = np.floor(np.clip(col, 0, self.width - 1) / tile).astype(np.int64)
+        ri = np.floor(np.clip(row, 0, self.height - 1) / tile).astype(np.int64)
+        key = ri * (self.width // tile + 2) + ci
+        idx = np.flatnonzero(inside)
+        order = idx[np.argsort(key[idx], kind="stable")]
+        keys_sorted = key[order]
+        starts = np.flatnonzero(np.r_[True, keys_sorted[1:] != keys_sorted[:-1]])
+        ends = np.r_[starts[1:], order.size]
+        for s, e in zip(starts, ends):  # one read per tile of points, not per point
+            sel = order[s:e]
+            r0 = max(int(math.floor(row[sel].min())), 0)
+            r1 = min(int(math.floor(row[sel].max())) + 2, self.height)
+            c0 = max(int(math.floor(col[sel].min())), 0)
+            c1 = min(int(math.floor(col[sel].max())) + 2, self.width)
+            arr = self.read_rows_cols(slice(r0, r1), slice(c0, c1))
+            out[sel] = bilinear(arr, row[sel] - r0, col[sel] - c0)
+        return out
+
+
+def bilinear(arr: np.ndarray, row: np.ndarray, col: np.ndarray) -> np.ndarray:
+    """Bilinear interpolation of ``arr`` at fractional indices; NaN-aware.
+
+    A sample whose 2 x 2 neighbourhood touches a NaN is NaN (voids never
+    become numbers); samples beyond the array edge by up to half a pixel take
+    the edge value.
+    """
+    if arr.size == 0:
+        return np.full(np.shape(row), np.nan)
+    row = np.clip(row, 0, arr.shape[0] - 1)
+    col = np.clip(col, 0, arr.shape[1] - 1)
+    nan = np.isnan(arr)
+    filled = np.where(nan, 0.0, arr)
+    vals = ndimage.map_coordinates(filled, [row, col], order=1, mode="nearest")
+    # any NaN among the 4 neighbours -> NaN
+    r0 = np.floor(row).astype(np.int64)
+    c0 = np.floor(col).astype(np.int64)
+    r1 = np.minimum(r0 + 1, arr.shape[0] - 1)
+    c1 = np.minimum(c0 + 1, arr.shape[1] - 1)
+    bad = nan[r0, c0] | nan[r0, c1] | nan[r1, c0] | nan[r1, c1]
+    vals[bad] = np.nan
+    return vals
+
+
+def open_dem(path, *, nodata: float | None = None, z_factor: float = 1.0, band: int = 1) -> Dem:
+    """Open a DEM lazily: read its metadata, never its pixels.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        Any raster GDAL reads.
+    nodata : float, optional
+        Void value to use when the file has none (or to override it).
+    z_factor : float
+        Multiplier turning stored elevations into metres (0.3048 for feet).
+    band : int
+        1-based band number.
+
+    Raises
+    ------
+    InputFileError
+        Missing or unreadable file.
+    CRSError
+        The raster has no CRS or a geographic one.
+    """
+    import rasterio
+
+    p = Path(path)
+    if not p.exists():
+        raise InputFileError(f"{p}: DEM file not found; check the path.")
+    try:
+        with rasterio.open(p) as src:
+            if band < 1 or band > src.count:
+                raise InputError(f"{p}: band {band} does not exist (the file has {src.count}).")
+            file_nodata = src.nodatavals[band - 1]
+            crs = src.crs
+            transform = src.transform
+            width, height = src.width, src.height
+            block = tuple(src.block_shapes[band - 1])
+    except rasterio.errors.RasterioIOError as exc:
+        raise InputFileError(f"{p}: not a raster GDAL can read ({str(exc).splitlines()[0]}).") from exc
+    if not (z_factor > 0 and math.isfinite(z_factor)):
+        raise InputError(f"{p}: z factor must be a positive number, got {z_factor}.")
+    if transform.b != 0 or transform.d != 0:
+        raise InputError(f"{p}: rotated rasters are not supported; warp the DEM north-up first.")
+    if crs is None:
+        raise CRSError(f"{p}: the DEM has no CRS; assign one (e.g. gdal_edit -a_srs EPSG:xxxx) and retry.")
+    from pyproj import CRS
+
+    pcrs = CRS.from_user_input(crs.to_wkt())
+    if pcrs.is_geographic:
+        raise CRSError(
+            f"{p}: the DEM is in geographic coordinates ({pcrs.name}); reproject it to a projected metric CRS "
+            "(e.g. the local UTM zone) first."
+        )
+    nd = nodata if nodata is not None else file_nodata
+    extra = () if nd is not None else COMMON_VOID_VALUES
+    return Dem(
+        path=p,
+        crs=pcrs,
+        transform=transform,
+        width=int(width),
+        height=int(height),
+        nodata=None if nd is None else float(nd),
+        z_factor=float(z_factor),
+        band=int(band),
+        block_shape=block,
+        _extra_voids=extra,
+    )

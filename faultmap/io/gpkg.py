@@ -1,0 +1,224 @@
+"""Atomic GeoPackage output and a read-only conformance check.
+
+Every layer of a run goes into a fresh temporary file beside the target. The
+file is checked (CRS of each layer re-read and compared with the working CRS,
+GeoPackage conformance) and only then moved over the target with
+:func:`os.replace`. A failed or interrupted run therefore leaves the earlier
+result untouched and no temporary file behind.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import sqlite3
+import uuid
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+
+from faultmap.errors import OutputError
+
+__all__ = ["check_target", "write_gpkg", "check_conformance", "sanitize_columns", "GPKG_APPLICATION_ID"]
+
+#: ``PRAGMA application_id`` of a GeoPackage ("GPKG" as int32).
+GPKG_APPLICATION_ID = 1196444487
+
+_SQL_RESERVED = {
+    "select", "from", "where", "table", "index", "order", "group", "by", "insert", "update", "delete",
+    "create", "drop", "alter", "join", "on", "as", "and", "or", "not", "null", "primary", "values",
+    "into", "limit", "offset", "union", "all", "distinct", "case", "when", "then", "else", "end", "default",
+    "check", "references", "unique", "column", "add", "set", "having", "in", "is", "like", "between",
+}  # fmt: skip
+
+
+def check_target(target, *, overwrite: bool) -> Path:
+    """Check that ``target`` can be written before any work is done.
+
+    Raises
+    ------
+    OutputError
+        When the folder is missing, the name is not ``.gpkg``, or the file
+        exists and ``overwrite`` is false.
+    """
+    p = Path(target)
+    if p.suffix.lower() != ".gpkg":
+        raise OutputError(f"{p}: the output must be a GeoPackage file ending in .gpkg.")
+    if not p.parent.exists():
+        raise OutputError(f"{p}: output folder {p.parent} does not exist; create it first.")
+    if p.exists() and not overwrite:
+        raise OutputError(f"{p}: exists already; use --overwrite (or overwrite = true) to replace it.")
+    if p.exists() and p.is_dir():
+        raise OutputError(f"{p}: is a folder; name a .gpkg file.")
+    return p
+
+
+def sanitize_columns(df: pd.DataFrame) -> pd.DataFrame:
+    """Lower-case ``[a-z0-9_]`` field names, unique, no SQL reserved words."""
+    mapping: dict[str, str] = {}
+    seen: set[str] = set()
+    geom = df.geometry.name if isinstance(df, gpd.GeoDataFrame) else None
+    for col in df.columns:
+        if col == geom:
+            continue
+        new = re.sub(r"[^a-z0-9_]", "_", str(col).lower()).strip("_") or "field"
+        if new[0].isdigit():
+            new = "f_" + new
+        if new in _SQL_RESERVED:
+            new = new + "_"
+        base, i = new, 2
+        while new in seen or new == "fid":
+            new = f"{base}_{i}"
+            i += 1
+        seen.add(new)
+        mapping[col] = new
+    out = df.rename(columns=mapping)
+    return out
+
+
+def _prepare_layer(name: str, df, crs):
+    if isinstance(df, gpd.GeoDataFrame):
+        out = df.copy()
+        if out.crs is None:
+            out = out.set_crs(crs)
+        elif not out.crs.equals(crs):
+            out = out.to_crs(crs)
+    else:
+        out = pd.DataFrame(df).copy()
+    out = sanitize_columns(out)
+    for col in out.columns:
+        if isinstance(out, gpd.GeoDataFrame) and col == out.geometry.name:
+            continue
+        s = out[col]
+        if s.dtype == object or str(s.dtype).startswith("string"):
+            out[col] = s.map(lambda v: None if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
+        elif str(s.dtype).startswith("datetime64") and getattr(s.dt, "tz", None) is None:
+            out[col] = s.dt.tz_localize("UTC")
+    return out
+
+
+def _write_one(path: Path, name: str, df) -> None:
+    import pyogrio
+
+    kwargs = {}
+    if isinstance(df, gpd.GeoDataFrame):
+        kwargs["promote_to_multi"] = False
+    pyogrio.write_dataframe(df, path, layer=name, driver="GPKG", **kwargs)
+
+
+def write_gpkg(target, layers: dict, *, crs, overwrite: bool = False) -> Path:
+    """Write all ``layers`` of a run into ``target`` atomically.
+
+    Parameters
+    ----------
+    target : str or pathlib.Path
+        The ``.gpkg`` to create or replace.
+    layers : dict
+        Layer name -> GeoDataFrame (written in ``crs``) or DataFrame
+        (attribute-only table).
+    crs : pyproj.CRS
+        Working CRS; every geometry layer is written in it and re-read to
+        check it survived exactly.
+    overwrite : bool
+        Replace an existing file.
+
+    Returns
+    -------
+    pathlib.Path
+        The written file.
+
+    Raises
+    ------
+    OutputError
+        Target not writable, CRS changed on writing, or the write failed; the
+        earlier file (if any) is left byte-for-byte intact.
+    """
+    import pyogrio
+
+    target = check_target(target, overwrite=overwrite)
+    tmp = target.parent / f".{target.stem}.{uuid.uuid4().hex[:8]}.tmp.gpkg"
+    try:
+        for name, df in layers.items():
+            if df is None:
+                continue
+            _write_one(tmp, name, _prepare_layer(name, df, crs))
+        for name, df in layers.items():
+            if isinstance(df, gpd.GeoDataFrame):
+                info = pyogrio.read_info(tmp, layer=name)
+                from pyproj import CRS
+
+                back = CRS.from_user_input(info["crs"]) if info.get("crs") else None
+                if back is None or not back.equals(crs):
+                    raise OutputError(
+                        f"{target}: layer '{name}' CRS changed on writing "
+                        f"({crs.name} -> {back.name if back else 'none'}); not saved."
+                    )
+        problems = check_conformance(tmp)
+        if problems:
+            raise OutputError(f"{target}: the written GeoPackage is not conformant ({problems[0]}); not saved.")
+        os.replace(tmp, target)
+    except OutputError:
+        _remove(tmp)
+        raise
+    except KeyboardInterrupt:
+        _remove(tmp)
+        raise
+    except Exception as exc:
+        _remove(tmp)
+        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        hint = " (if the file is open in a GIS, close it)" if "transaction" in msg.lower() else ""
+        raise OutputError(f"{target}: writing failed: {msg}{hint}; the earlier result is unchanged.") from exc
+    return target
+
+
+def _remove(p: Path) -> None:
+    for q in (p, Path(str(p) + "-journal"), Path(str(p) + "-wal"), Path(str(p) + "-shm")):
+        try:
+            q.unlink()
+        except FileNotFoundError:
+            pass
+
+
+def check_conformance(path) -> list[str]:
+    """Read-only GeoPackage checks with sqlite3; an empty list means conformant.
+
+    Checks ``application_id`` (1196444487), ``user_version`` (10200-10499),
+    ``integrity_check``, the presence and consistency of the ``gpkg_*``
+    system tables, one rtree index per geometry column, and that no CRS is
+    left undefined.
+    """
+    problems: list[str] = []
+    uri = Path(path).resolve().as_uri() + "?mode=ro"
+    con = sqlite3.connect(uri, uri=True)
+    try:
+        app = con.execute("PRAGMA application_id").fetchone()[0]
+        if app != GPKG_APPLICATION_ID:
+            problems.append(f"application_id {app}")
+        ver = con.execute("PRAGMA user_version").fetchone()[0]
+        if not 10200 <= ver <= 10499:
+            problems.append(f"user_version {ver}")
+        ok = con.execute("PRAGMA integrity_check").fetchone()[0]
+        if ok != "ok":
+            problems.append(f"integrity_check {ok}")
+        tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type IN ('table','view')")}
+        for t in ("gpkg_spatial_ref_sys", "gpkg_contents", "gpkg_geometry_columns"):
+            if t not in tables:
+                problems.append(f"missing {t}")
+        if problems:
+            return problems
+        srs = {r[0] for r in con.execute("SELECT srs_id FROM gpkg_spatial_ref_sys")}
+        for name, dtype, srs_id in con.execute("SELECT table_name, data_type, srs_id FROM gpkg_contents"):
+            if name not in tables:
+                problems.append(f"gpkg_contents lists missing table {name}")
+            if dtype == "features" and srs_id not in srs:
+                problems.append(f"layer {name} has unknown srs_id {srs_id}")
+            if dtype == "features" and srs_id in (0, -1):
+                problems.append(f"layer {name} has an undefined CRS")
+        for tname, col in con.execute("SELECT table_name, column_name FROM gpkg_geometry_columns"):
+            if f"rtree_{tname}_{col}" not in tables:
+                problems.append(f"no rtree index on {tname}.{col}")
+    finally:
+        con.close()
+    return problems

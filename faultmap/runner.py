@@ -1,0 +1,401 @@
+"""Running tools: load inputs once, run a chain of tools, write outputs atomically.
+
+The command line, project files and the Python API all end here, in
+:func:`run_tools`.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import shutil
+import sys
+import uuid
+import warnings as _warnings
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import geopandas as gpd
+import pandas as pd
+
+from faultmap.errors import CRSError, FaultmapWarning, InputError, NotAvailableError, OutputError
+from faultmap.registry import BrokenTool, load_tools, resolve_order
+
+__all__ = ["RunContext", "RunResult", "run_tools", "INPUT_KEYS", "file_checksum"]
+
+#: Keys accepted in the ``inputs`` mapping (and the ``[inputs]`` table).
+INPUT_KEYS = {
+    "faults": str,
+    "faults_layer": str,
+    "dem": str,
+    "dem_nodata": float,
+    "dem_z_factor": float,
+    "transects": str,
+    "transects_layer": str,
+    "study_area": str,
+    "study_area_layer": str,
+    "crs": str,
+}
+
+
+def _echo(msg: str) -> None:
+    print(msg, file=sys.stderr)
+
+
+@dataclass
+class RunContext:
+    """What a tool sees while it runs.
+
+    Attributes
+    ----------
+    crs : pyproj.CRS
+        Working CRS (projected, metric).
+    raw_faults : geopandas.GeoDataFrame or None
+        Traces as read, reprojected to the working CRS (before ``prepare``).
+    dem : faultmap.io.dem.Dem or None
+        Lazy DEM.
+    transects, study_area : geopandas.GeoDataFrame or None
+        Optional layers in the working CRS.
+    layers : dict
+        Output layers by name; ``faults`` is also ``ctx.faults``.
+    results : dict
+        In-memory results tools leave for later tools.
+    fields : dict
+        Input field-name mapping (``[fields]``).
+    """
+
+    crs: Any = None
+    raw_faults: gpd.GeoDataFrame | None = None
+    dem: Any = None
+    transects: gpd.GeoDataFrame | None = None
+    study_area: gpd.GeoDataFrame | None = None
+    layers: dict = field(default_factory=dict)
+    results: dict = field(default_factory=dict)
+    fields: dict = field(default_factory=dict)
+    inputs: dict = field(default_factory=dict)
+    quiet: bool = False
+    warnings: list = field(default_factory=list)
+    notices: list = field(default_factory=list)
+    records: dict = field(default_factory=dict)
+    engine: Any = None
+    current_tool: str = ""
+    _figures: dict = field(default_factory=dict)
+    _stage: Path | None = None
+    echo: Any = _echo
+
+    @property
+    def faults(self) -> gpd.GeoDataFrame | None:
+        """The ``faults`` layer (after ``prepare``)."""
+        return self.layers.get("faults")
+
+    @faults.setter
+    def faults(self, value) -> None:
+        self.layers["faults"] = value
+
+    def warn(self, msg: str) -> None:
+        """Record a warning for ``run_info`` and print it."""
+        text = f"{self.current_tool}: {msg}" if self.current_tool else msg
+        self.warnings.append(text)
+        self.echo(f"warning: {text}")
+
+    def info(self, msg: str) -> None:
+        """Record a notice for ``run_info`` and print it unless quiet."""
+        text = f"{self.current_tool}: {msg}" if self.current_tool else msg
+        self.notices.append(text)
+        if not self.quiet:
+            self.echo(text)
+
+    def record(self, key: str, value: Any) -> None:
+        """Add a ``run_info`` entry (value stored as text)."""
+        prefix = f"{self.current_tool}." if self.current_tool and not key.startswith(self.current_tool + ".") else ""
+        self.records[prefix + key] = value
+
+    def progress(self, iterable: Iterable, *, total: int | None = None, desc: str = ""):
+        """Wrap ``iterable`` in a progress bar on stderr (off with ``quiet``)."""
+        from tqdm.auto import tqdm
+
+        return tqdm(
+            iterable,
+            total=total,
+            desc=desc or self.current_tool,
+            disable=True if self.quiet else None,
+            file=sys.stderr,
+            leave=False,
+        )
+
+    def save_figure(self, fig, name: str, *, dpi: int = 170) -> None:
+        """Stage a matplotlib figure; it is moved into place after the GeoPackage is written."""
+        if self._stage is None:
+            return
+        tmp = self._stage / name
+        tmp.parent.mkdir(parents=True, exist_ok=True)
+        fig.savefig(tmp, dpi=dpi, bbox_inches="tight")
+        self._figures[name] = tmp
+
+    @property
+    def figures_enabled(self) -> bool:
+        """Whether figures are being written."""
+        return self._stage is not None
+
+
+@dataclass
+class RunResult:
+    """Outcome of :func:`run_tools`."""
+
+    gpkg: Path
+    layers: dict
+    figures: list[Path]
+    warnings: list[str]
+    run_info: pd.DataFrame
+    results: dict
+
+
+def file_checksum(path: Path, *, full_limit: int = 2 * 1024**3) -> str:
+    """SHA-256 of a file; files over ``full_limit`` bytes hash head, tail and size."""
+    h = hashlib.sha256()
+    size = path.stat().st_size
+    with open(path, "rb") as fh:
+        if size <= full_limit:
+            for chunk in iter(lambda: fh.read(1 << 20), b""):
+                h.update(chunk)
+            return "sha256:" + h.hexdigest()
+        h.update(fh.read(64 << 20))
+        fh.seek(size - (64 << 20))
+        h.update(fh.read())
+        h.update(str(size).encode())
+        return "sha256-partial:" + h.hexdigest()
+
+
+def _check_inputs(inputs: dict) -> dict:
+    unknown = sorted(set(inputs) - set(INPUT_KEYS))
+    if unknown:
+        raise InputError(f"unknown input '{unknown[0]}'; valid: {', '.join(INPUT_KEYS)}.")
+    out = {}
+    for k, v in inputs.items():
+        if v is None:
+            continue
+        if INPUT_KEYS[k] is float:
+            try:
+                v = float(v)
+            except (TypeError, ValueError):
+                raise InputError(f"input '{k}' must be a number, got {v!r}.") from None
+        elif isinstance(v, os.PathLike):
+            v = str(v)
+        elif not isinstance(v, str):
+            raise InputError(f"input '{k}' must be text (a path or name), got {v!r}.")
+        out[k] = v
+    return out
+
+
+def _load_inputs(ctx: RunContext, inputs: dict, needed: set[str]) -> None:
+    from pyproj import CRS
+
+    from faultmap.crs import check_metric, local_metric_crs
+    from faultmap.io.dem import open_dem
+    from faultmap.io.vector import read_layer
+
+    for kind in sorted(needed):
+        if kind not in inputs:
+            raise InputError(f"input '{kind}' is required by the tools asked for; give --{kind.replace('_', '-')} or [inputs] {kind}.")
+    crs_override = inputs.get("crs")
+    if "dem" in inputs:
+        ctx.dem = open_dem(inputs["dem"], nodata=inputs.get("dem_nodata"), z_factor=inputs.get("dem_z_factor", 1.0))
+        check_metric(ctx.dem.crs, where=str(inputs["dem"]))
+        ctx.crs = ctx.dem.crs
+    if "faults" in inputs:
+        raw = read_layer(inputs["faults"], layer=inputs.get("faults_layer"), what="faults", crs=crs_override)
+        src = raw.attrs.get("source", inputs["faults"])
+        if ctx.crs is None:
+            if raw.crs.is_geographic:
+                c = raw.geometry.union_all().centroid
+                ctx.crs = local_metric_crs(c.x, c.y)
+                ctx.info(f"{src} is in geographic coordinates; working CRS set to {ctx.crs.name} ({ctx.crs.to_string()}).")
+            else:
+                check_metric(raw.crs, where=src)
+                ctx.crs = CRS.from_user_input(raw.crs)
+        if not raw.crs.equals(ctx.crs):
+            ctx.info(f"{src} reprojected from {raw.crs.name} to the working CRS {ctx.crs.name}.")
+            raw = raw.to_crs(ctx.crs)
+        ctx.raw_faults = raw
+    for kind in ("transects", "study_area"):
+        if kind in inputs:
+            g = read_layer(inputs[kind], layer=inputs.get(f"{kind}_layer"), what=kind, crs=crs_override)
+            if ctx.crs is None:
+                raise CRSError(f"{inputs[kind]}: cannot set a working CRS without faults or a DEM.")
+            if not g.crs.equals(ctx.crs):
+                ctx.info(f"{g.attrs.get('source', inputs[kind])} reprojected to the working CRS {ctx.crs.name}.")
+                attrs = dict(g.attrs)
+                g = g.to_crs(ctx.crs)
+                g.attrs.update(attrs)
+            setattr(ctx, kind, g)
+    if ctx.crs is not None and ctx.crs.is_geographic:  # pragma: no cover - guarded above
+        raise CRSError("working CRS is geographic; this is a bug.")
+
+
+def _run_info(ctx: RunContext, order: list[str], params: dict, inputs: dict, out: Path) -> pd.DataFrame:
+    from faultmap import __version__
+
+    rows: list[tuple[str, str]] = [
+        ("faultmap_version", __version__),
+        ("run_utc", datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")),
+        ("tools", ",".join(order)),
+        ("output", str(out)),
+        ("working_crs_name", ctx.crs.name if ctx.crs is not None else ""),
+        ("working_crs_wkt", ctx.crs.to_wkt() if ctx.crs is not None else ""),
+    ]
+    for k, v in inputs.items():
+        rows.append((f"input.{k}", str(v)))
+        if k in ("faults", "dem", "transects", "study_area"):
+            p = Path(v)
+            if p.is_file():
+                rows.append((f"input.{k}.size_bytes", str(p.stat().st_size)))
+                rows.append((f"input.{k}.checksum", file_checksum(p)))
+    for k, v in ctx.fields.items():
+        rows.append((f"field.{k}", str(v)))
+    for tool, ps in params.items():
+        for k, v in ps.items():
+            rows.append((f"param.{tool}.{k}", "" if v is None else str(v)))
+    for k, v in ctx.records.items():
+        rows.append((k, str(v)))
+    for i, n in enumerate(ctx.notices, 1):
+        rows.append((f"notice.{i}", n))
+    for i, w in enumerate(ctx.warnings, 1):
+        rows.append((f"warning.{i}", w))
+    return pd.DataFrame(rows, columns=["key", "value"])
+
+
+def run_tools(
+    names: Iterable[str],
+    *,
+    inputs: dict,
+    out,
+    params: dict | None = None,
+    figures=None,
+    overwrite: bool = False,
+    fields: dict | None = None,
+    quiet: bool = False,
+    skip_unavailable: bool = False,
+    engine=None,
+    tools: dict | None = None,
+    echo=None,
+) -> RunResult:
+    """Run tools (and the tools they require) and write one GeoPackage.
+
+    Parameters
+    ----------
+    names : iterable of str
+        Tools asked for; their requirements run first, with defaults unless
+        ``params`` names them.
+    inputs : dict
+        Input paths and options (keys of :data:`INPUT_KEYS`).
+    out : path
+        Output ``.gpkg``.
+    params : dict, optional
+        ``{tool: {param: value}}``.
+    figures : path, optional
+        Folder for figures (created if missing); ``None`` writes none.
+    overwrite : bool
+        Replace an existing output.
+    fields : dict, optional
+        Field-name mapping for the traces.
+    quiet : bool
+        No progress bars or notices (warnings still print).
+    skip_unavailable : bool
+        Skip tools that are not built or lack inputs (``faultmap run``
+        without ``steps``) instead of failing.
+
+    Returns
+    -------
+    RunResult
+    """
+    from faultmap.io.gpkg import check_target, write_gpkg
+
+    registry = load_tools() if tools is None else tools
+    params = {k: dict(v or {}) for k, v in (params or {}).items()}
+    inputs = _check_inputs(dict(inputs))
+    out = check_target(out, overwrite=overwrite)
+    ctx = RunContext(quiet=quiet, fields=dict(fields or {}), inputs=inputs, engine=engine)
+    if echo is not None:
+        ctx.echo = echo
+    names = list(names)
+    unknown_params = sorted(set(params) - set(registry))
+    if unknown_params:
+        raise InputError(f"parameters given for unknown tool '{unknown_params[0]}'; tools: {', '.join(registry)}.")
+    order = resolve_order(names, registry)
+    skipped: list[str] = []
+    if skip_unavailable:
+        runnable: list[str] = []
+        for n in order:
+            t = registry[n]
+            need = set(getattr(t, "inputs", ()))
+            if isinstance(t, BrokenTool) or not t.available:
+                skipped.append(f"{n} (not available yet)")
+            elif any(r not in runnable for r in t.requires):
+                skipped.append(f"{n} (needs {', '.join(r for r in t.requires if r not in runnable)})")
+            elif not need <= set(inputs):
+                skipped.append(f"{n} (needs input {', '.join(sorted(need - set(inputs)))})")
+            else:
+                runnable.append(n)
+        order = runnable
+    for n in order:
+        t = registry[n]
+        if isinstance(t, BrokenTool):
+            raise NotAvailableError(f"tool '{n}' failed to load ({t.error}).")
+        if not t.available:
+            raise NotAvailableError(f"tool '{n}' is not available yet in this version of faultmap.")
+    resolved = {n: registry[n].resolve_params(params.get(n), where=f"[{n}]") for n in order}
+    needed = set().union(*(set(registry[n].inputs) for n in order)) if order else set()
+    stage = None
+    fig_dir = Path(figures) if figures is not None else None
+    if fig_dir is not None:
+        if fig_dir.exists() and not fig_dir.is_dir():
+            raise OutputError(f"{fig_dir}: exists and is not a folder; name a folder for figures.")
+        if not fig_dir.parent.exists():
+            raise OutputError(f"{fig_dir}: parent folder {fig_dir.parent} does not exist; create it first.")
+        stage = out.parent / f".{out.stem}.figures.{uuid.uuid4().hex[:8]}.tmp"
+    try:
+        if stage is not None:
+            stage.mkdir()
+        ctx._stage = stage
+        import matplotlib
+
+        matplotlib.use("Agg")
+        _load_inputs(ctx, inputs, needed)
+        for s in skipped:
+            ctx.info(f"skipped {s}.")
+        implicit = [n for n in order if n not in names and n not in params]
+        if implicit:
+            ctx.info(f"also ran {', '.join(implicit)} with default parameters (required by the tools asked for).")
+        for n in order:
+            ctx.current_tool = n
+            with _warnings.catch_warnings(record=True) as caught:
+                _warnings.simplefilter("always", FaultmapWarning)
+                registry[n].run(ctx, resolved[n])
+            for w in caught:
+                if issubclass(w.category, FaultmapWarning):
+                    ctx.warn(str(w.message))
+                else:
+                    _warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+        ctx.current_tool = ""
+        if ctx.crs is None:
+            raise InputError("no input gave a CRS: give faults or a DEM.")
+        run_info = _run_info(ctx, order, resolved, inputs, out)
+        layers = {k: v for k, v in ctx.layers.items() if v is not None}
+        layers["run_info"] = run_info
+        write_gpkg(out, layers, crs=ctx.crs, overwrite=overwrite)
+        written: list[Path] = []
+        if stage is not None and ctx._figures:
+            fig_dir.mkdir(exist_ok=True)
+            for name, tmp in ctx._figures.items():
+                dest = fig_dir / name
+                dest.parent.mkdir(parents=True, exist_ok=True)
+                os.replace(tmp, dest)
+                written.append(dest)
+    finally:
+        if stage is not None and stage.exists():
+            shutil.rmtree(stage, ignore_errors=True)
+    return RunResult(gpkg=out, layers=layers, figures=written, warnings=list(ctx.warnings), run_info=run_info, results=ctx.results)
+
