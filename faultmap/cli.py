@@ -98,7 +98,12 @@ def tool_command(tool: Tool | BrokenTool, state: _State) -> click.Command:
             click.echo(f"error: tool '{tool.name}' failed to load: {tool.error}", err=True)
             sys.exit(2)
 
-        return click.Command(tool.name, callback=broken, help=f"BROKEN: {tool.error}")
+        return click.Command(
+            tool.name,
+            callback=broken,
+            help=f"BROKEN: {tool.error}",
+            context_settings={"ignore_unknown_options": True, "allow_extra_args": True},
+        )
 
     def callback(**kw):
         from faultmap.engine import make_engine

@@ -82,6 +82,7 @@ def axial_mean_deg(azimuth_deg, weights, groups=None, n_groups=None) -> np.ndarr
     s = np.bincount(groups, w * np.sin(a), minlength=n_groups)
     c = np.bincount(groups, w * np.cos(a), minlength=n_groups)
     out = (np.degrees(np.arctan2(s, c)) / 2.0) % 180.0
+    out = np.where(np.isclose(out, 180.0, rtol=0.0, atol=1e-9), 0.0, out)
     out[(s == 0) & (c == 0)] = np.nan
     return out
 
@@ -287,6 +288,8 @@ def condition_traces(
             f"{where}: dip direction is more than 45 deg from the trace normal for features {_ids(ids[skew])}; check field '{f['dip_dir']}'."
         )
     lines = orient_traces(lines, strike)
+    # recompute from the oriented traces so the result is bit-identical whatever the digitising direction
+    strike = strike_from_geometry(lines, dd)
     out = gpd.GeoDataFrame(
         {
             "fault_id": np.arange(1, n + 1, dtype=np.int64),

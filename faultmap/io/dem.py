@@ -90,7 +90,7 @@ class Dem:
         """
         xmin, ymin, xmax, ymax = bounds
         inv = ~self.transform
-        cols, rows = inv * (np.array([xmin, xmax, xmin, xmax]), np.array([ymin, ymin, ymax, ymax]))
+        cols, rows = _apply(inv, np.array([xmin, xmax, xmin, xmax]), np.array([ymin, ymin, ymax, ymax]))
         c0 = int(math.floor(np.min(cols))) - pad_pixels
         c1 = int(math.ceil(np.max(cols))) + pad_pixels
         r0 = int(math.floor(np.min(rows))) - pad_pixels
@@ -178,7 +178,7 @@ class Dem:
         if x.size == 0:
             return out
         inv = ~self.transform
-        col, row = inv * (x, y)
+        col, row = _apply(inv, x, y)
         # pixel centres sit at half-integers: shift to array index space
         col = col - 0.5
         row = row - 0.5
@@ -204,6 +204,11 @@ class Dem:
             arr = self.read_rows_cols(slice(r0, r1), slice(c0, c1))
             out[sel] = bilinear(arr, row[sel] - r0, col[sel] - c0)
         return out
+
+
+def _apply(t, x, y):
+    """Apply an affine transform to coordinate arrays: returns (x', y')."""
+    return t.a * x + t.b * y + t.c, t.d * x + t.e * y + t.f
 
 
 def bilinear(arr: np.ndarray, row: np.ndarray, col: np.ndarray) -> np.ndarray:

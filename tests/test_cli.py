@@ -1,0 +1,177 @@
+"""Command line: bad inputs give one clear line, exit 2 and no output."""
+
+from __future__ import annotations
+
+import geopandas as gpd
+import numpy as np
+import pyogrio
+import pytest
+import shapely
+
+from tests.conftest import CRS, X0, Y0, tilted_dem, write_dem
+
+
+def _assert_user_error(res, out, *words):
+    assert res.exit_code == 2, res.output + res.stderr
+    lines = [ln for ln in res.stderr.splitlines() if ln.startswith("error:")]
+    assert len(lines) == 1, res.stderr
+    for w in words:
+        assert w.lower() in lines[0].lower(), lines[0]
+    assert "Traceback" not in res.stderr
+    assert not out.exists()
+    assert not [p for p in out.parent.iterdir() if ".tmp" in p.name]
+
+
+def _run(cli, scene, *extra, faults=None, dem=None, out=None):
+    out = out or scene["dir"] / "out.gpkg"
+    args = ["prepare", "--faults", faults or scene["faults"], "--out", out]
+    if dem is not False:
+        args += ["--dem", dem or scene["dem"]]
+    return cli([*args, *extra]), out
+
+
+def test_prepare_runs(cli, scene):
+    res, out = _run(cli, scene)
+    assert res.exit_code == 0, res.stderr
+    f = pyogrio.read_dataframe(out, layer="faults")
+    assert len(f) == 4 and set(f["dip_source"]) == {"default", "attribute"}
+    info = pyogrio.read_dataframe(out, layer="run_info")
+    keys = set(info["key"])
+    assert {"faultmap_version", "working_crs_wkt", "param.prepare.dip_deg", "input.dem.checksum"} <= keys
+    assert any(k.startswith("warning.") for k in keys)
+
+
+def test_missing_file(cli, scene):
+    res, out = _run(cli, scene, faults=scene["dir"] / "nope.gpkg")
+    _assert_user_error(res, out, "nope.gpkg", "not found")
+
+
+def test_corrupt_and_non_spatial_files(cli, scene):
+    bad = scene["dir"] / "bad.gpkg"
+    bad.write_bytes(b"this is not a geopackage")
+    res, out = _run(cli, scene, faults=bad)
+    _assert_user_error(res, out, "bad.gpkg")
+    csv = scene["dir"] / "table.csv"
+    csv.write_text("a,b\n1,2\n")
+    res, out = _run(cli, scene, faults=csv)
+    _assert_user_error(res, out, "table.csv", "geometry")
+
+
+def test_layer_not_found(cli, scene):
+    res, out = _run(cli, scene, "--faults-layer", "wrong")
+    _assert_user_error(res, out, "layer 'wrong' not found", "traces")
+
+
+def test_no_crs(cli, scene):
+    g = scene["gdf"].set_crs(None, allow_override=True)
+    p = scene["dir"] / "nocrs.geojson"
+    g.to_file(p, driver="GeoJSON")
+    # GeoJSON implies WGS84; use a shapefile without .prj instead
+    p = scene["dir"] / "nocrs.shp"
+    g.to_file(p)
+    (scene["dir"] / "nocrs.prj").unlink(missing_ok=True)
+    res, out = _run(cli, scene, faults=p)
+    _assert_user_error(res, out, "no crs", "--crs")
+    res2, out2 = _run(cli, scene, "--crs", CRS, faults=p)
+    assert res2.exit_code == 0, res2.stderr
+
+
+@pytest.mark.parametrize("geom", [shapely.Point(X0 + 10, Y0 - 10), shapely.box(X0, Y0 - 100, X0 + 100, Y0)])
+def test_point_or_polygon_layer(cli, scene, geom):
+    p = scene["dir"] / "wrong.gpkg"
+    gpd.GeoDataFrame({"a": [1]}, geometry=[geom], crs=CRS).to_file(p)
+    res, out = _run(cli, scene, faults=p)
+    _assert_user_error(res, out, "not lines", "feature")
+
+
+def test_empty_layer(cli, scene):
+    p = scene["dir"] / "empty.gpkg"
+    gpd.GeoDataFrame({"a": []}, geometry=gpd.GeoSeries([], crs=CRS)).to_file(p, layer="traces")
+    res, out = _run(cli, scene, faults=p)
+    _assert_user_error(res, out, "empty")
+
+
+def test_all_zero_length(cli, scene):
+    p = scene["dir"] / "zero.gpkg"
+    gpd.GeoDataFrame({"a": [1, 2]}, geometry=[shapely.LineString([(X0 + 5, Y0 - 5)] * 2)] * 2, crs=CRS).to_file(p)
+    res, out = _run(cli, scene, faults=p)
+    _assert_user_error(res, out, "zero length")
+
+
+@pytest.mark.parametrize("dip, word", [(0.0, "dip"), (-5.0, "dip"), (91.0, "dip"), ("steep", "not a number")])
+def test_bad_dip(cli, scene, dip, word):
+    g = scene["gdf"].copy()
+    g["dip"] = [dip, 50.0, 50.0] if not isinstance(dip, str) else [dip, "50", "50"]
+    p = scene["dir"] / "baddip.gpkg"
+    g.to_file(p)
+    res, out = _run(cli, scene, faults=p)
+    _assert_user_error(res, out, word, "feature 1")
+
+
+def test_bad_dip_dir(cli, scene):
+    g = scene["gdf"].copy()
+    g["dip_dir"] = [361.0, 90.0, 90.0]
+    p = scene["dir"] / "baddd.gpkg"
+    g.to_file(p)
+    res, out = _run(cli, scene, faults=p)
+    _assert_user_error(res, out, "dip direction", "0-360")
+
+
+def test_dem_all_nodata(cli, scene):
+    dem = write_dem(scene["dir"] / "void.tif", np.full((300, 300), np.nan))
+    res, out = _run(cli, scene, dem=dem)
+    _assert_user_error(res, out, "nodata")
+
+
+def test_traces_outside_dem(cli, scene):
+    dem = write_dem(scene["dir"] / "far.tif", tilted_dem(), x0=X0 + 50000)
+    res, out = _run(cli, scene, dem=dem)
+    _assert_user_error(res, out, "no trace overlaps the dem")
+
+
+def test_output_folder_missing(cli, scene):
+    out = scene["dir"] / "missing" / "out.gpkg"
+    res, _ = _run(cli, scene, out=out)
+    assert res.exit_code == 2 and "does not exist" in res.stderr
+    assert not out.parent.exists()
+
+
+def test_output_exists_without_overwrite(cli, scene):
+    res, out = _run(cli, scene)
+    assert res.exit_code == 0
+    before = out.read_bytes()
+    res2, _ = _run(cli, scene)
+    assert res2.exit_code == 2 and "--overwrite" in res2.stderr
+    assert out.read_bytes() == before
+    res3, _ = _run(cli, scene, "--overwrite")
+    assert res3.exit_code == 0
+
+
+def test_bad_parameter_value(cli, scene):
+    res, out = _run(cli, scene, "--dip-deg", "95")
+    _assert_user_error(res, out, "dip_deg", "<= 90")
+    res, out = _run(cli, scene, "--link-distance-m", "far")
+    _assert_user_error(res, out, "link_distance_m", "number")
+
+
+def test_verbose_shows_traceback(cli, scene):
+    res = cli(["-v", "prepare", "--faults", scene["dir"] / "nope.gpkg", "--out", scene["dir"] / "o.gpkg"])
+    assert res.exit_code == 2 and "Traceback" in res.stderr
+
+
+def test_tools_lists_seven(cli):
+    res = cli(["tools"])
+    names = [ln.split()[0] for ln in res.output.splitlines()]
+    assert names[:7] == ["prepare", "throw", "scaling", "transect", "strain", "width", "hazard"]
+    res = cli(["tools", "prepare"])
+    assert "link_distance_m" in res.output and "[m]" in res.output
+    res = cli(["tools", "nosuch"])
+    assert res.exit_code == 2
+
+
+def test_python_dash_m(scene):
+    import subprocess
+    import sys
+
+    r = subprocess.run([sys.executable, "-m", "faultmap", "tools"], capture_output=True, text=True, check=True)
+    assert "prepare" in r.stdout
