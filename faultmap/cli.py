@@ -216,6 +216,9 @@ def build_cli() -> click.Group:
             folder_p = Path(folder)
             folder_p.mkdir(parents=True, exist_ok=True)
             paths = write_demo_area(folder_p, scale=scale)
+            from faultmap.project import read_project
+
+            Path(read_project(paths["project"], tools=tools)["output"]["gpkg"]).parent.mkdir(exist_ok=True)
             if not state.quiet:
                 click.echo(f"demo area written in {folder_p}", err=True)
             res = run_project(paths["project"], overwrite=True, quiet=state.quiet, tools=tools)
