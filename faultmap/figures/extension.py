@@ -164,6 +164,7 @@ def extension_map_figure(
     ax.set_aspect("equal")
     ax.set_xlabel("Easting (m)", fontsize=_FONT)
     ax.set_ylabel("Northing (m)", fontsize=_FONT)
+    ax.ticklabel_format(style="plain", useOffset=False)
     ax.tick_params(labelsize=_FONT - 1)
     if handles:
         ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.1), ncol=min(3, len(handles)),
