@@ -72,6 +72,8 @@ def run(ctx, p: dict) -> None:
         f"{len(faults)} traces, {int(censored.sum())} censored, {n_sys} linked systems of several segments."
     )
     ctx.record("n_traces", len(faults))
+    # kept so that throw can re-link systems once it knows every dip direction
+    ctx.results["prepare"] = {"link_distance_m": p["link_distance_m"], "link_angle_deg": p["link_angle_deg"]}
     ctx.faults = faults
 
 

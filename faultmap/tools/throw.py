@@ -57,6 +57,7 @@ def run(ctx, p: dict) -> None:
     res = measure_throw(faults, dem, params=params, mapper=mapper, progress=progress)
     for w in res.warnings:
         ctx.warn(w)
+    _relink(ctx, res, params)
     # what was used where the user left a parameter unset
     px = dem.pixel_size
     if p["station_spacing_m"] is None:
@@ -118,6 +119,35 @@ def run(ctx, p: dict) -> None:
             throw_profiles(res.faults, res.stations, n_largest=p["n_profile_figures"]), "throw_profiles.png"
         )
         ctx.save_figure(system_profiles(res.faults, res.stations, res.linkage_zones), "throw_systems.png")
+
+
+def _relink(ctx, res, params) -> None:
+    """Re-link systems once the DEM has given the dip directions prepare did not know.
+
+    ``prepare`` links segments whose dip direction is unknown on geometry alone;
+    with the down-thrown side measured, segments dipping opposite ways are split
+    (and linkage zones recomputed) with the same link parameters.
+    """
+    from faultmap.prepare import link_systems
+    from faultmap.throw import linkage_zones
+
+    link = ctx.results.get("prepare")
+    f = res.faults
+    if not link or not (f["dip_dir_source"] == "dem").any():
+        return
+    new = link_systems(
+        f.geometry.to_numpy(),
+        f["strike_deg"].to_numpy(dtype=float),
+        f["dip_dir_deg"].to_numpy(dtype=float),
+        link_distance_m=link["link_distance_m"],
+        link_angle_deg=link["link_angle_deg"],
+    )
+    old = f["system_id"].to_numpy()
+    if np.array_equal(new, old):
+        return
+    f["system_id"] = new
+    res.linkage_zones = linkage_zones(f, res.stations, step_m=params.station_spacing_m)
+    ctx.info("linked systems updated with the dip directions measured from the DEM.")
 
 
 TOOL = Tool(
