@@ -160,28 +160,18 @@ def dl_figure(
         ax.scatter(L[other], D[other], s=18, marker="x", c="#555555", zorder=3, label="excluded")
     under = ok & (flag == "under_displaced")
     over = ok & (flag == "over_displaced")
-    if under.any():
-        ax.scatter(
-            L[under],
-            D[under],
-            s=80,
-            facecolors="none",
-            edgecolors="#1565c0",
-            lw=1.6,
-            zorder=4,
-            label="under-displaced outlier",
-        )
-    if over.any():
-        ax.scatter(
-            L[over],
-            D[over],
-            s=80,
-            facecolors="none",
-            edgecolors="#c62828",
-            lw=1.6,
-            zorder=4,
-            label="over-displaced outlier",
-        )
+    for sel, colour, what in ((under, "#1565c0", "under"), (over, "#c62828", "over")):
+        if sel.any():
+            ax.scatter(
+                L[sel],
+                D[sel],
+                s=80,
+                facecolors="none",
+                edgecolors=colour,
+                lw=1.6,
+                zorder=4,
+                label=f"{what}-displaced outlier",
+            )
     if label_outliers:
         for j, i in enumerate(np.flatnonzero(under | over)):
             dy = 5 if j % 2 == 0 else -11  # alternate to limit overlaps
