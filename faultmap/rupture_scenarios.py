@@ -165,7 +165,13 @@ def rupture_scenarios(
         md = np.where(np.isfinite(md), md, float(event_max_displacement_m))
     if event_avg_displacement_m is not None:
         ad = np.where(np.isfinite(ad), ad, float(event_avg_displacement_m))
-    systems = sel["system_id"].to_numpy()
+    systems = pd.to_numeric(sel["system_id"], errors="coerce").to_numpy(dtype=float, copy=True)
+    # a fault with no system (NaN) is a system of its own: give it an id no other fault has
+    lone = ~np.isfinite(systems)
+    if lone.any():
+        top = np.nanmax(systems) if (~lone).any() else 0.0
+        systems[lone] = top + 1.0 + np.arange(int(lone.sum()))
+    systems = systems.astype(np.int64)
 
     # ---- member sets ---------------------------------------------------
     sets: list[tuple[str, tuple[int, ...]]] = [("segment", (i,)) for i in range(n)]

@@ -428,3 +428,23 @@ def test_tool_wrapper_on_hand_built_context():
     assert ctx.records["hazard.mapping_uncertainty_m_used"] == 0.0  # no DEM, no scale: recorded
     with pytest.raises(ParameterError):
         TOOL.run(ctx, TOOL.resolve_params({"fault_ids": "two"}))
+
+
+def test_missing_system_id_is_a_system_of_its_own():
+    # A screened fault without a system_id (e.g. faults not conditioned by prepare) must not crash
+    # and is scenario'd alone; W&C (1994) normal SRL: M = 4.86 + 1.32 log10(SRL km) (methods.md, verified).
+    import geopandas as gpd
+    import numpy as np
+    import shapely
+
+    from faultmap.hazard import rupture_scenarios
+
+    f = gpd.GeoDataFrame(
+        {"fault_id": [1, 2], "dip_deg": [60.0, 60.0], "dip_dir_deg": [90.0, 90.0], "system_id": [1.0, np.nan],
+         "active": [True, True], "length_m": [10000.0, 20000.0]},
+        geometry=[shapely.LineString([(0, 0), (0, 10000)]), shapely.LineString([(5000, 0), (5000, 20000)])],
+        crs="EPSG:32633",
+    )
+    sc, _warnings = rupture_scenarios(f)
+    assert len(sc) == 2
+    assert sorted(sc["length_km"].round(3)) == [10.0, 20.0]
