@@ -321,7 +321,11 @@ def test_extension_figures():
     ax2 = fig2.axes[0]
     assert ax2.get_ylabel() == "Extension (%)"
     labels = [tx.get_text() for tx in ax2.get_legend().get_texts()]
-    assert any("below detection" in s for s in labels)
+    # the measured panel never shows the extrapolated estimate; the second panel does
+    assert not any("below detection" in s for s in labels)
+    assert len(fig2.axes) == 2
+    labels2 = [tx.get_text() for tx in fig2.axes[1].get_legend().get_texts()]
+    assert any("below detection" in s for s in labels2)
     assert len(ax2.lines) >= 1
 
 

@@ -194,14 +194,23 @@ def transect_extension_figure(transects: gpd.GeoDataFrame, *, title: str | None 
         sub-resolution corrected extension, when present, as separate
         diamonds (never merged with the measured value).
     """
-    fig = Figure(figsize=(7.5, 4.5), dpi=150, constrained_layout=True)
-    ax = fig.add_subplot(1, 1, 1)
+    ec = None
+    if "extension_corrected" in transects.columns:
+        ec = 100.0 * transects["extension_corrected"].to_numpy(dtype=float)
+        if not np.isfinite(ec).any():
+            ec = None
+    # the measured values get their own panel: an extrapolated correction can be an order of
+    # magnitude larger and must never squash (or be read as) the measurement
+    fig = Figure(figsize=(11.0 if ec is not None else 7.5, 4.5), dpi=150, constrained_layout=True)
+    ax = fig.add_subplot(1, 2 if ec is not None else 1, 1)
     if "position_m" in transects.columns and np.isfinite(transects["position_m"].to_numpy(dtype=float)).all():
         x = transects["position_m"].to_numpy(dtype=float) / 1000.0
         xlabel = "Position along strike (km)"
+        integer_x = False
     else:
         x = transects["transect_id"].to_numpy(dtype=float)
         xlabel = "Transect id"
+        integer_x = True
     e = 100.0 * transects["extension"].to_numpy(dtype=float)
     lo = 100.0 * transects.get("extension_p16", transects["extension"]).to_numpy(dtype=float)
     hi = 100.0 * transects.get("extension_p84", transects["extension"]).to_numpy(dtype=float)
@@ -215,16 +224,27 @@ def transect_extension_figure(transects: gpd.GeoDataFrame, *, title: str | None 
     if inside.any():
         ax.errorbar(x[inside], e[inside], yerr=yerr[:, inside], fmt="o", mfc="white", color="tab:red",
                     ecolor="0.5", capsize=3, label="measured, transect ends inside the faults")
-    if "extension_corrected" in transects.columns:
-        ec = 100.0 * transects["extension_corrected"].to_numpy(dtype=float)
-        if np.isfinite(ec).any():
-            ax.plot(x, ec, "D", color="tab:purple", mfc="none", label="with faults below detection (estimate)")
-    ax.axhline(0.0, color="0.6", lw=0.8)
-    ax.set_xlabel(xlabel, fontsize=_FONT)
-    ax.set_ylabel("Extension (%)", fontsize=_FONT)
-    ax.tick_params(labelsize=_FONT - 1)
-    if len(x):
-        ax.legend(fontsize=_FONT - 1, loc="best")
+    axes = [ax]
+    if ec is not None:
+        ax2 = fig.add_subplot(1, 2, 2, sharex=ax)
+        ax2.plot(x, e, "o", color="tab:red", label="measured")
+        ax2.plot(x, ec, "D", color="tab:purple", mfc="none",
+                 label="with faults below detection\n(Marrett & Allmendinger 1992 extrapolation)")
+        if np.nanmax(ec) > 0 and np.nanmax(ec) / max(np.nanmin(np.where(e > 0, e, np.nan)), 1e-9) > 20:
+            ax2.set_yscale("log")
+        ax2.set_title("Estimate including faults below detection", fontsize=_FONT)
+        axes.append(ax2)
+    for a in axes:
+        a.axhline(0.0, color="0.6", lw=0.8)
+        a.set_xlabel(xlabel, fontsize=_FONT)
+        a.set_ylabel("Extension (%)", fontsize=_FONT)
+        a.tick_params(labelsize=_FONT - 1)
+        a.grid(alpha=0.3)
+        if integer_x:
+            from matplotlib.ticker import MaxNLocator
+
+            a.xaxis.set_major_locator(MaxNLocator(integer=True))
+        if len(x):
+            a.legend(fontsize=_FONT - 1, loc="best")
     ax.set_title(title or "Extension along transects (heave summation)", fontsize=_FONT + 1)
-    ax.grid(alpha=0.3)
     return fig
