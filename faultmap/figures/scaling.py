@@ -300,8 +300,21 @@ def size_figure(
         ax.set_ylim(0.5 / max(f.n, 1), 1.5)
         ax.grid(True, which="both", lw=0.3, alpha=0.5)
         ax.tick_params(labelsize=9)
+        # label 1-2-5 only: every minor label on a log axis spanning a few decades overlaps
+        from matplotlib.ticker import FuncFormatter
+
+        ax.xaxis.set_major_formatter(FuncFormatter(_label_125))
+        ax.xaxis.set_minor_formatter(FuncFormatter(_label_125))
         ax.set_title(f"Cumulative frequency: {label.split(' (')[0].lower()}", fontsize=11)
         ax.legend(fontsize=7, loc="lower left", framealpha=0.85)
     fig.suptitle("Size distributions (LR > 0 favours the power law; Clauset et al. 2009)", fontsize=10)
     fig.tight_layout()
     return fig
+
+
+def _label_125(value: float, _pos=None) -> str:
+    """Tick label for 1, 2 and 5 times a power of ten; empty otherwise."""
+    if not np.isfinite(value) or value <= 0:
+        return ""
+    mant = value / 10 ** np.floor(np.log10(value) + 1e-9)
+    return f"{value:g}" if np.isclose(mant, (1.0, 2.0, 5.0), rtol=1e-6).any() else ""
