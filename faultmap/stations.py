@@ -29,6 +29,7 @@ __all__ = [
     "side_signs",
     "strike_axis_deg",
     "station_distances",
+    "points_along",
     "place_stations",
     "trace_segments",
     "crossing_limits",
@@ -158,6 +159,78 @@ def station_distances(length_m, spacing_m) -> tuple[np.ndarray, np.ndarray]:
     return line, offset[line] + j * s[line]
 
 
+class _Polylines:
+    """Vertices and cumulative lengths of many traces, for interpolating points along them."""
+
+    def __init__(self, lines):
+        coords, idx = shapely.get_coordinates(np.asarray(lines), return_index=True)
+        n = len(lines)
+        self.xy = coords
+        nv = np.bincount(idx, minlength=n)
+        self.first = np.cumsum(nv) - nv  # first vertex of each line
+        self.nv = nv
+        seg = np.hypot(*(coords[1:] - coords[:-1]).T)
+        seg[idx[1:] != idx[:-1]] = 0.0  # no segment between two lines
+        # cumulative length at every vertex, restarting at each line (float64, summed once)
+        cum = np.concatenate([[0.0], np.cumsum(seg)])
+        self.cum = cum[: coords.shape[0]] - np.repeat(cum[self.first], nv)
+        self.length = np.zeros(n)
+        has = nv > 0
+        self.length[has] = self.cum[self.first[has] + nv[has] - 1]
+
+    def points(self, line, dist) -> np.ndarray:
+        """(x, y) at ``dist`` metres along ``line`` (indices), clamped to the trace; shape (m, 2)."""
+        line = np.asarray(line, dtype=np.int64)
+        dist = np.clip(np.asarray(dist, dtype=float), 0.0, self.length[line])
+        f = self.first[line]
+        last = f + np.maximum(self.nv[line] - 1, 0)
+        # the segment [k, k + 1] holding each distance: binary search within the line's vertices
+        lo = f.copy()
+        hi = last.copy()
+        span = int(self.nv.max(initial=1))
+        while span > 1:
+            mid = (lo + hi + 1) // 2
+            right = self.cum[mid] <= dist
+            lo = np.where(right, mid, lo)
+            hi = np.where(right, hi, mid - 1)
+            span = (span + 1) // 2
+        k = np.minimum(lo, np.maximum(last - 1, f))
+        k1 = np.minimum(k + 1, last)
+        seg = self.cum[k1] - self.cum[k]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            t = np.where(seg > 0, (dist - self.cum[k]) / seg, 0.0)
+        t = np.clip(t, 0.0, 1.0)[:, None]
+        return self.xy[k] + t * (self.xy[k1] - self.xy[k])
+
+
+def points_along(lines, line, dist) -> np.ndarray:
+    """Points at given distances along traces, as array operations.
+
+    Parameters
+    ----------
+    lines : array_like of LineString
+        Traces.
+    line : array_like of int
+        Trace (index into ``lines``) of each point.
+    dist : array_like of float
+        Distance from the trace's first vertex, metres (clamped to the
+        trace).
+
+    Returns
+    -------
+    ndarray, shape (m, 2)
+        x, y of each point.
+
+    Notes
+    -----
+    The same points as ``shapely.line_interpolate_point`` for distances
+    within the trace (linear interpolation on the segment holding the
+    distance, geometry), found by a binary search on the cumulative vertex
+    distances of all traces at once.
+    """
+    return _Polylines(lines).points(line, dist)
+
+
 def place_stations(lines, *, spacing_m, normal_window_m, side_sign) -> StationSet:
     """Stations every ``spacing_m`` with normals smoothed over a window.
 
@@ -185,23 +258,22 @@ def place_stations(lines, *, spacing_m, normal_window_m, side_sign) -> StationSe
     swing the profiles (geometry).
     """
     lines = np.asarray(lines)
+    poly = _Polylines(lines)
     L = shapely.length(lines)
     line, dist = station_distances(L, spacing_m)
-    g = lines[line]
     w = np.broadcast_to(np.asarray(normal_window_m, dtype=float), L.shape)[line]
-    p = shapely.get_coordinates(shapely.line_interpolate_point(g, dist))
+    p = poly.points(line, dist)
     lo = np.clip(dist - 0.5 * w, 0.0, L[line])
     hi = np.clip(dist + 0.5 * w, 0.0, L[line])
-    pa = shapely.get_coordinates(shapely.line_interpolate_point(g, lo))
-    pb = shapely.get_coordinates(shapely.line_interpolate_point(g, hi))
+    pa = poly.points(line, lo)
+    pb = poly.points(line, hi)
     t = pb - pa
     tn = np.hypot(t[:, 0], t[:, 1])
     # a closed window chord (hairpin) falls back to the first-to-last direction of the trace
     bad = tn <= 1e-9 * np.maximum(w, 1.0)
     if bad.any():
-        s0 = shapely.get_coordinates(shapely.get_point(g[bad], 0))
-        s1 = shapely.get_coordinates(shapely.get_point(g[bad], -1))
-        t[bad] = s1 - s0
+        li = line[bad]
+        t[bad] = poly.xy[poly.first[li] + poly.nv[li] - 1] - poly.xy[poly.first[li]]
         tn[bad] = np.hypot(t[bad, 0], t[bad, 1])
     tn = np.where(tn > 0, tn, 1.0)
     tx, ty = t[:, 0] / tn, t[:, 1] / tn
@@ -260,10 +332,11 @@ def crossing_limits(
 
     Notes
     -----
-    Candidates come from a shapely STRtree of the trace segments queried with
-    the profile segments (``predicate='intersects'``); the crossing distance
-    of each pair is then solved in closed form (2-D segment intersection,
-    geometry), all as array operations.
+    Candidates come from a shapely STRtree of the trace segments' bounding
+    boxes queried with the profiles' boxes; for each candidate pair the
+    crossing is then solved in closed form (2-D segment intersection:
+    position along the profile and along the segment, geometry), all as
+    array operations.
     """
     n = len(stations)
     lim_m = np.full(n, np.inf)
@@ -276,27 +349,38 @@ def crossing_limits(
         return lim_m, lim_p
     H = np.broadcast_to(np.asarray(half_length_m, dtype=float), (n,))
     px, py, nx, ny = stations.x, stations.y, stations.nx, stations.ny
+    # candidates: profile and segment bounding boxes overlap (STRtree query without a predicate)
     prof = shapely.linestrings(
         np.stack([np.c_[px - H * nx, py - H * ny], np.c_[px + H * nx, py + H * ny]], axis=1)
     )
-    segs = shapely.linestrings(seg.reshape(-1, 2, 2))
-    tree = shapely.STRtree(segs)
-    i, j = tree.query(prof, predicate="intersects")
+    tree = shapely.STRtree(shapely.linestrings(seg.reshape(-1, 2, 2)))
+    i, j = tree.query(prof)
     if i.size == 0:
         return lim_m, lim_p
-    # solve P + t n = A + u (B - A)
+    # solve P + t n = A + u (B - A): t along the profile, u along the segment
     ax, ay, bx, by = seg[j, 0], seg[j, 1], seg[j, 2], seg[j, 3]
     ex, ey = bx - ax, by - ay
-    den = nx[i] * ey - ny[i] * ex  # cross(n, e)
+    ni, nyi = nx[i], ny[i]
+    den = ni * ey - nyi * ex  # cross(n, e)
     qx, qy = ax - px[i], ay - py[i]
+    elen = np.hypot(ex, ey)
+    par = np.abs(den) <= 1e-12 * np.maximum(elen, 1e-300)
     with np.errstate(divide="ignore", invalid="ignore"):
         t = (qx * ey - qy * ex) / den
-    # a segment lying along the profile: take its nearer end
-    par = np.abs(den) < 1e-12
+        u = (qx * nyi - qy * ni) / den
+    eps = 1e-9
+    hit = ~par & (u >= -eps) & (u <= 1.0 + eps) & (np.abs(t) <= H[i] * (1.0 + eps))
     if par.any():
-        ta = qx[par] * nx[i[par]] + qy[par] * ny[i[par]]
-        tb = (bx[par] - px[i[par]]) * nx[i[par]] + (by[par] - py[i[par]]) * ny[i[par]]
-        t[par] = np.where(np.abs(ta) < np.abs(tb), ta, tb)
+        # a segment lying along the profile: take its nearer end, where it overlaps the profile
+        pi = np.flatnonzero(par)
+        off_line = np.abs(qx[pi] * nyi[pi] - qy[pi] * ni[pi])  # distance of A from the profile line
+        ta = qx[pi] * ni[pi] + qy[pi] * nyi[pi]
+        tb = (bx[pi] - px[i[pi]]) * ni[pi] + (by[pi] - py[i[pi]]) * nyi[pi]
+        Hp = H[i[pi]]
+        on = (off_line <= eps * np.maximum(Hp, 1.0)) & (np.minimum(ta, tb) <= Hp) & (np.maximum(ta, tb) >= -Hp)
+        t[pi] = np.where(np.abs(ta) < np.abs(tb), ta, tb)
+        hit[pi] = on
+    i, j, t = i[hit], j[hit], t[hit]
     lid = np.arange(len(lines)) if line_ids is None else np.asarray(line_ids)
     sid = stations.line if station_ids is None else np.asarray(station_ids)
     own = lid[owner[j]] == sid[i]

@@ -779,3 +779,104 @@ def test_profile_smoothing_recovers_shapes_and_is_chunk_invariant():
     b = _smooth_profiles(g, flat, se, None, chunk=1000)
     for x, y in zip(a, b, strict=True):
         assert np.allclose(x, y, equal_nan=True)
+
+
+# ---------------------------------------------------------------------------
+# Building blocks checked against reference libraries and analytic properties
+# ---------------------------------------------------------------------------
+def test_bilinear_samples_match_map_coordinates():
+    # reference library: scipy.ndimage.map_coordinates(order=1, mode="constant", cval=nan) is the
+    # bilinear interpolation the profiles use (pixel centres at integer coordinates); voids and samples
+    # beyond the window must come out NaN exactly where it says so
+    from scipy import ndimage
+
+    from faultmap.profiles import sample_profiles
+
+    rng = np.random.default_rng(11)
+    arr = (800.0 + np.cumsum(rng.normal(0.0, 1.0, (120, 150)), axis=1)).astype("float32")
+    arr[40:44, 60:70] = np.nan
+    t = from_origin(1000.0, 9000.0, PX, PX)
+    m, K, step = 300, 40, 0.9 * PX
+    x = rng.uniform(1000.0, 1000.0 + 150 * PX, m)
+    y = rng.uniform(9000.0 - 120 * PX, 9000.0, m)
+    az = rng.uniform(0.0, 2.0 * math.pi, m)
+    nx, ny = np.sin(az), np.cos(az)
+    z = sample_profiles(arr, t, x, y, nx, ny, K, step)
+    d = np.arange(1, K + 1) * step
+    side = np.r_[-np.ones(m), np.ones(m)]
+    px_ = np.r_[x, x][:, None] + side[:, None] * np.r_[nx, nx][:, None] * d
+    py_ = np.r_[y, y][:, None] + side[:, None] * np.r_[ny, ny][:, None] * d
+    cols = (px_ - t.c) / t.a - 0.5
+    rows = (py_ - t.f) / t.e - 0.5
+    ref = ndimage.map_coordinates(arr, [rows, cols], order=1, mode="constant", cval=np.nan, prefilter=False)
+    assert (np.isnan(z) == np.isnan(ref)).all()
+    assert np.isnan(ref).any() and np.isfinite(ref).sum() > 0.5 * ref.size
+    # float32 rounding of elevations near 800 m (one unit in the last place is 6e-5 m)
+    assert np.nanmax(np.abs(z - ref)) < 5e-4
+
+
+def test_points_along_match_shapely():
+    # reference library: shapely.line_interpolate_point, including repeated vertices and the end points
+    from faultmap.stations import points_along
+
+    rng = np.random.default_rng(5)
+    lines = np.array(
+        [
+            shapely.LineString(np.cumsum(rng.normal(0.0, 50.0, (int(rng.integers(2, 12)), 2)), axis=0))
+            for _ in range(40)
+        ]
+        + [shapely.LineString([(0, 0), (0, 0), (10, 0), (10, 5)])]
+    )
+    li = rng.integers(0, len(lines), 2000)
+    L = shapely.length(lines)[li]
+    dist = rng.uniform(0.0, 1.0, li.size) * L
+    dist[:50], dist[50:100] = 0.0, L[50:100]
+    got = points_along(lines, li, dist)
+    ref = shapely.get_coordinates(shapely.line_interpolate_point(lines[li], dist))
+    assert np.allclose(got, ref, atol=1e-9)
+
+
+def test_robust_line_fit_is_the_m_estimate():
+    # analytic property (Holland & Welsch 1977): the returned line is a fixed point of the reweighting,
+    # i.e. the weighted least-squares line with Tukey weights of its own residuals at its own scale
+    rng = np.random.default_rng(9)
+    d = np.arange(1, 31, dtype=float)
+    Z = 2.0 - 0.1 * d + rng.normal(0.0, 0.3, (300, d.size))
+    out = rng.random(Z.shape) < 0.15  # outliers of +-4 m (gullies, vegetation)
+    Z[out] += rng.choice([-4.0, 4.0], size=int(out.sum()))
+    M = np.ones(Z.shape, dtype=bool)
+    r = robust_line_fits(Z, M, d, loss="tukey", tuning=4.685, iterations=3)
+    u = (Z - (r["a"][:, None] + r["b"][:, None] * d)) / (4.685 * r["scale"][:, None])
+    w = np.clip(1.0 - u * u, 0.0, None) ** 2
+    sw, sd, sdd = w.sum(1), (w * d).sum(1), (w * d * d).sum(1)
+    sz, sdz = (w * Z).sum(1), (w * d * Z).sum(1)
+    b = (sw * sdz - sd * sz) / (sw * sdd - sd * sd)
+    a = (sz - b * sd) / sw
+    move = np.maximum(np.abs(a - r["a"] + (b - r["b"]) * d[0]), np.abs(a - r["a"] + (b - r["b"]) * d[-1]))
+    # converged to 1 % of the residual scale (a few fits stop at the pass limit)
+    assert np.mean(move < 0.02 * r["scale"]) > 0.97
+    assert np.median(np.abs(r["b"] + 0.1)) < 0.01
+
+
+def test_station_fits_do_not_depend_on_their_matrix():
+    # engineering: a station's fit is the same whichever stations share its matrix (longer or shorter
+    # profiles, another order), so results never depend on how the work was split into batches
+    rng = np.random.default_rng(21)
+    K, n = 60, 40
+    d = np.arange(1, K + 1, dtype=float)
+    jump = rng.uniform(2.0, 20.0, n)
+    width = rng.uniform(2.0, 12.0, n)
+    base = 0.05 * d + rng.normal(0.0, 0.2, (n, K))
+    up = base + 0.5 * jump[:, None] * np.clip(1.0 - d / width[:, None], 0.0, 1.0)
+    down = base - 0.5 * jump[:, None] * np.clip(1.0 - d / width[:, None], 0.0, 1.0)
+    Z = np.vstack([up, down]).astype("float32")
+    lim = np.full(2 * n, float(K))
+    lim[n + 3] = 35.0  # a side cut short by a crossing
+    kw = dict(w0_steps=3, far_min_steps=20, min_samples=10)
+    whole = fit_profile_matrix(Z, lim, **kw)
+    order = rng.permutation(n)[:15]
+    sub = fit_profile_matrix(
+        np.vstack([Z[:n][order], Z[n:][order]]), np.r_[lim[:n][order], lim[n:][order]], **kw
+    )
+    for k in ("a", "b", "var_a", "w", "scale"):
+        assert np.array_equal(sub[k], np.r_[whole[k][:n][order], whole[k][n:][order]], equal_nan=True), k
