@@ -234,7 +234,7 @@ TOOL = Tool(
             max=20.0,
             nullable=True,
         ),
-        Param("robust_iterations", int, 3, "Reweighting iterations of each robust fit.", min=0, max=50),
+        Param("robust_iterations", int, 3, "Minimum reweighting passes of each robust fit (the noise scale is re-estimated on these; the fit then runs until the line converges, at most 10 passes).", min=0, max=50),
         Param(
             "scarp_iterations", int, 3, "Scarp-zone refinements (edge detection and refit).", min=0, max=10
         ),
