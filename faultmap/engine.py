@@ -3,16 +3,57 @@
 Tools hand the engine a pure function and a list of batches; the engine
 returns the results in the order of the batches, so outputs are identical
 whatever runs them. Only the client (this process) writes outputs.
+
+Three kinds of engine:
+
+* ``in-process`` (default): a plain loop, or a small thread pool
+  (``threads``); needs nothing beyond faultmap's own dependencies.
+* ``local-cluster`` (``workers=N``): starts a Dask ``LocalCluster`` of N
+  single-threaded worker processes on this machine for the run.
+* ``scheduler`` (``scheduler="tcp://host:8786"``): connects to an existing
+  Dask scheduler; every worker must be able to import faultmap and read the
+  input files at the same paths.
+
+Dask (``pip install 'faultmap[dask]'``) is only imported for the last two.
 """
 
 from __future__ import annotations
 
+import logging
+import warnings
 from collections.abc import Callable, Sequence
 from typing import Any
 
-from faultmap.errors import FaultmapError, ParameterError
+from faultmap.errors import FaultmapError, NotAvailableError, ParameterError
 
-__all__ = ["Engine", "make_engine"]
+__all__ = ["Engine", "make_engine", "engine_map", "run_capturing_warnings", "DASK_HINT"]
+
+#: How to get the optional Dask dependencies.
+DASK_HINT = "pip install 'faultmap[dask]'"
+
+
+def run_capturing_warnings(func: Callable[[Any], Any], batch: Any) -> tuple[Any, list]:
+    """Run ``func(batch)`` and return ``(result, warnings)``.
+
+    What a Dask worker runs for each batch: warnings raised on a worker would
+    otherwise be lost, so they travel back with the result and the engine
+    raises them again on the client, in batch order. Every
+    :class:`~faultmap.errors.FaultmapWarning` is kept (the run records each
+    one, as in-process); other warnings follow the worker's filters.
+
+    Returns
+    -------
+    result : object
+        What ``func`` returned.
+    warnings : list of (str, type, str, int)
+        Message, category, file name and line number of each warning.
+    """
+    from faultmap.errors import FaultmapWarning
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", FaultmapWarning)
+        out = func(batch)
+    return out, [(str(w.message), w.category, str(w.filename), int(w.lineno or 0)) for w in caught]
 
 
 class Engine:
@@ -21,49 +62,95 @@ class Engine:
     Parameters
     ----------
     workers : int, optional
-        Start a local Dask cluster with this many worker processes.
+        Start a local Dask cluster with this many single-threaded worker
+        processes (closed with :meth:`close` or at the end of a ``with``).
     scheduler : str, optional
         Address of an existing Dask scheduler (``tcp://host:8786``).
     threads : int, optional
-        In-process thread pool size (default 1: sequential).
+        In-process thread pool size (default 1: sequential). Ignored by the
+        Dask engines (their workers decide).
+    timeout_s : float
+        How long to wait for an existing scheduler to answer, s.
+
+    Raises
+    ------
+    ParameterError
+        Bad numbers, or both ``workers`` and ``scheduler``.
+    NotAvailableError
+        ``workers`` or ``scheduler`` without Dask installed (the message
+        says how to install it).
+    FaultmapError
+        The scheduler cannot be reached.
     """
 
-    def __init__(self, *, workers: int | None = None, scheduler: str | None = None, threads: int | None = None):
-        if workers is not None and workers < 1:
-            raise ParameterError(f"workers must be >= 1, got {workers}.")
-        if threads is not None and threads < 1:
-            raise ParameterError(f"threads must be >= 1, got {threads}.")
+    def __init__(
+        self,
+        *,
+        workers: int | None = None,
+        scheduler: str | None = None,
+        threads: int | None = None,
+        timeout_s: float = 20.0,
+    ):
+        if workers is not None and (isinstance(workers, bool) or int(workers) != workers or workers < 1):
+            raise ParameterError(f"workers must be a whole number >= 1, got {workers}.")
+        if threads is not None and (isinstance(threads, bool) or int(threads) != threads or threads < 1):
+            raise ParameterError(f"threads must be a whole number >= 1, got {threads}.")
         if workers is not None and scheduler is not None:
             raise ParameterError("give either workers (a local cluster) or scheduler (an existing one), not both.")
-        self.workers = workers
+        if scheduler is not None and (not isinstance(scheduler, str) or not scheduler.strip()):
+            raise ParameterError(f"scheduler must be an address such as tcp://host:8786, got {scheduler!r}.")
+        self.workers = None if workers is None else int(workers)
         self.scheduler = scheduler
-        self.threads = threads or 1
+        self.threads = int(threads or 1)
         self._client = None
         self._cluster = None
         if workers is not None or scheduler is not None:
             try:
                 from dask.distributed import Client, LocalCluster
             except ImportError as exc:
-                raise FaultmapError(
-                    "the Dask engine needs the optional extra: pip install 'faultmap[dask]'."
+                opt = "--workers" if workers is not None else "--scheduler"
+                raise NotAvailableError(
+                    f"{opt} runs on Dask, which is not installed: {DASK_HINT} (or run without {opt}, in-process)."
                 ) from exc
             if scheduler is not None:
                 try:
-                    self._client = Client(scheduler, timeout="20s")
-                except OSError as exc:
-                    raise FaultmapError(f"cannot reach the Dask scheduler at {scheduler} ({exc}).") from exc
+                    self._client = Client(scheduler, timeout=f"{float(timeout_s)}s", set_as_default=False)
+                except (OSError, TimeoutError, ValueError) as exc:
+                    raise FaultmapError(
+                        f"cannot reach the Dask scheduler at {scheduler} ({type(exc).__name__}: {exc}); "
+                        "check the address and that the scheduler is running."
+                    ) from exc
             else:
+                # loopback only, no dashboard, quiet logs: a private cluster for this run
                 self._cluster = LocalCluster(
-                    n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None
+                    n_workers=self.workers,
+                    threads_per_worker=1,
+                    processes=True,
+                    host="127.0.0.1",
+                    dashboard_address=None,
+                    scheduler_kwargs={"dashboard": False, "dashboard_address": "127.0.0.1:0"},
+                    silence_logs=logging.CRITICAL,  # worker errors reach the client as exceptions
                 )
-                self._client = Client(self._cluster)
+                self._client = Client(self._cluster, set_as_default=False)
 
+    # ------------------------------------------------------------------ description
     @property
     def kind(self) -> str:
         """``in-process``, ``local-cluster`` or ``scheduler``."""
         if self.scheduler is not None:
             return "scheduler"
         return "local-cluster" if self.workers is not None else "in-process"
+
+    @property
+    def parallelism(self) -> int:
+        """How many batches can run at once (threads, or worker threads of the cluster)."""
+        if self._client is None:
+            return self.threads
+        try:
+            n = sum(self._client.nthreads().values())
+        except Exception:  # noqa: BLE001 - a lost scheduler shows up in map()
+            n = 0
+        return max(int(n), 1)
 
     def describe(self) -> str:
         """One line for run_info."""
@@ -73,39 +160,103 @@ class Engine:
             return f"local Dask cluster, {self.workers} worker process(es)"
         return f"Dask scheduler at {self.scheduler}"
 
+    @property
+    def client(self):
+        """The ``dask.distributed.Client`` (None in-process)."""
+        return self._client
+
+    # ------------------------------------------------------------------ running
     def map(self, func: Callable[[Any], Any], batches: Sequence[Any], *, progress=None) -> list:
         """``[func(b) for b in batches]``, possibly in parallel; order kept.
 
-        A failing batch raises its error here (the run then fails as a whole
-        and writes nothing).
+        Parameters
+        ----------
+        func : callable
+            A function defined at module level in an importable package
+            (Dask workers import it by name); it must not rely on state of
+            this process other than its argument.
+        batches : sequence
+            Picklable work items (paths and geometries, never open datasets).
+        progress : callable, optional
+            ``progress(iterable, total) -> iterable`` wrapper (progress bar).
+
+        Returns
+        -------
+        list
+            ``func(batch)`` for each batch, in the order of ``batches``.
+
+        Raises
+        ------
+        FaultmapError
+            A batch failed: its own FaultmapError (the message names the
+            batch and the worker), or any other error turned into one. The
+            remaining batches are cancelled; nothing has been written.
         """
         batches = list(batches)
         wrap = progress or (lambda it, total: it)
+        if not batches:
+            return []
         if self._client is not None:
-            from dask.distributed import as_completed
-
-            futures = self._client.map(func, batches, pure=False)
-            index = {f.key: i for i, f in enumerate(futures)}
-            out: list = [None] * len(batches)
-            try:
-                for fut in wrap(as_completed(futures), len(futures)):
-                    out[index[fut.key]] = fut.result()
-            except FaultmapError:
-                self._client.cancel(futures)
-                raise
-            except Exception as exc:
-                self._client.cancel(futures)
-                raise FaultmapError(f"a worker failed: {type(exc).__name__}: {exc}; nothing was written.") from exc
-            return out
-        if self.threads > 1:
-            from concurrent.futures import ThreadPoolExecutor
-
-            with ThreadPoolExecutor(self.threads) as ex:
-                return list(wrap(ex.map(func, batches), len(batches)))
+            return self._map_dask(func, batches, wrap)
+        if self.threads > 1 and len(batches) > 1:
+            return self._map_threads(func, batches, wrap)
         return [func(b) for b in wrap(batches, len(batches))]
 
+    def _map_threads(self, func, batches, wrap) -> list:
+        from concurrent.futures import ThreadPoolExecutor
+
+        ex = ThreadPoolExecutor(min(self.threads, len(batches)))
+        futures = [ex.submit(func, b) for b in batches]
+        try:
+            out = [f.result() for f in wrap(iter(futures), len(futures))]
+        except BaseException:
+            ex.shutdown(wait=True, cancel_futures=True)
+            raise
+        ex.shutdown(wait=True)
+        return out
+
+    def _map_dask(self, func, batches, wrap) -> list:
+        from functools import partial
+
+        from dask.distributed import as_completed
+
+        n = len(batches)
+        task = partial(run_capturing_warnings, func)
+        futures = self._client.map(task, batches, pure=False)
+        index = {f.key: i for i, f in enumerate(futures)}
+        out: list = [None] * n
+        caught: list = [None] * n
+        i = -1
+        try:
+            with self._client.as_current():
+                for fut in wrap(as_completed(futures), n):
+                    i = index[fut.key]
+                    out[i], caught[i] = fut.result()
+                    i = -1  # a later error not raised by a batch (lost connection) names none
+        except KeyboardInterrupt:
+            self._client.cancel(futures)
+            raise
+        except Exception as exc:
+            self._client.cancel(futures)
+            raise _worker_error(exc, i, n, self.describe()) from exc
+        del futures
+        from faultmap.errors import FaultmapWarning
+
+        seen: set = set()
+        for ws in caught:
+            for msg, cat, filename, lineno in ws or ():
+                # every FaultmapWarning (as in-process); others once, like Python's default filter
+                key = (msg, cat, filename, lineno)
+                if not issubclass(cat, FaultmapWarning):
+                    if key in seen:
+                        continue
+                    seen.add(key)
+                warnings.warn_explicit(msg, cat, filename, lineno, module=_module_of(filename))
+        return out
+
+    # ------------------------------------------------------------------ lifetime
     def close(self) -> None:
-        """Shut down a cluster this engine started."""
+        """Disconnect; shut down a cluster this engine started."""
         if self._client is not None:
             self._client.close()
             self._client = None
@@ -120,6 +271,64 @@ class Engine:
         self.close()
 
 
-def make_engine(*, workers: int | None = None, scheduler: str | None = None, threads: int | None = None) -> Engine:
-    """Build the engine described by CLI options or a project's ``[engine]`` table."""
-    return Engine(workers=workers, scheduler=scheduler, threads=threads)
+def _module_of(filename: str) -> str:
+    """Return a module name for ``warn_explicit`` from a file name (for the warning filters)."""
+    import os
+
+    return os.path.splitext(os.path.basename(filename))[0] or "faultmap"
+
+
+def _worker_error(exc: Exception, i: int, n: int, where: str) -> Exception:
+    """Build a one-line FaultmapError for a failed batch (keeping the class of faultmap's own errors)."""
+    at = f"batch {i + 1} of {n}" if i >= 0 else f"one of {n} batches"
+    tail = f"({at}, {where}); the run stopped and nothing was written."
+    text = " ".join(str(exc).split())  # one line
+    if isinstance(exc, FaultmapError):
+        try:
+            return type(exc)(f"{text.rstrip('.')} {tail}")
+        except Exception:  # noqa: BLE001 - an error class with another signature
+            return FaultmapError(f"{text} {tail}")
+    name = type(exc).__name__
+    if name == "KilledWorker":
+        return FaultmapError(
+            f"a Dask worker died running {at} ({where}), e.g. out of memory; lower memory_budget_mb or give "
+            "the workers more memory. The run stopped and nothing was written."
+        )
+    return FaultmapError(f"a worker failed on {at} ({where}): {name}: {text}; the run stopped and nothing was written.")
+
+
+def make_engine(
+    *,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    threads: int | None = None,
+    timeout_s: float = 20.0,
+) -> Engine:
+    """Build the engine described by CLI options or a project's ``[engine]`` table.
+
+    Parameters
+    ----------
+    workers : int, optional
+        Local Dask cluster with this many worker processes (``--workers``).
+    scheduler : str, optional
+        Existing Dask scheduler address (``--scheduler``).
+    threads : int, optional
+        In-process threads.
+    timeout_s : float
+        Connection timeout for ``scheduler``, s.
+
+    Returns
+    -------
+    Engine
+        Close it (or use it in a ``with`` block) to stop a local cluster.
+    """
+    return Engine(workers=workers, scheduler=scheduler, threads=threads, timeout_s=timeout_s)
+
+
+def engine_map(engine: Engine | None, func: Callable[[Any], Any], batches: Sequence[Any], *, progress=None) -> list:
+    """``engine.map(func, batches)``, or a plain ordered loop when ``engine`` is None."""
+    if engine is None:
+        batches = list(batches)
+        it = batches if progress is None else progress(batches, len(batches))
+        return [func(b) for b in it]
+    return engine.map(func, batches, progress=progress)

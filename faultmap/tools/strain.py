@@ -1,9 +1,13 @@
 """Tool ``strain``: horizontal strain tensors by Kostrov summation.
 
-Thin wrapper around :func:`faultmap.strain.kostrov_grid` (and
-:func:`faultmap.strain.kostrov_polygons` for the study-area polygons, when
-given): adds the ``strain_cells`` layer (and ``strain_areas``), the
-whole-area tensor to ``run_info``, and a map of extension directions.
+Thin wrapper around the tiled form of :func:`faultmap.strain.kostrov_grid`
+(:func:`~faultmap.strain.plan_kostrov_tiles` splits the grid into tiles of
+:data:`TILE_CELLS` x :data:`TILE_CELLS` cells, the run's engine sums each tile,
+:func:`~faultmap.strain.gather_kostrov_tiles` assembles them: the same cells
+whatever runs them) and :func:`faultmap.strain.kostrov_polygons` for the
+study-area polygons, when given: adds the ``strain_cells`` layer (and
+``strain_areas``), the whole-area tensor to ``run_info``, and a map of
+extension directions.
 """
 
 from __future__ import annotations
@@ -13,9 +17,12 @@ import shapely
 
 from faultmap.errors import InputError
 from faultmap.registry import Param, Tool
-from faultmap.strain import kostrov_grid, kostrov_polygons
+from faultmap.strain import gather_kostrov_tiles, kostrov_polygons, kostrov_tile, plan_kostrov_tiles
 
 FIGURE = "strain_map.png"
+
+#: Side of a tile of grid cells summed as one batch (any value gives the same cells).
+TILE_CELLS = 64
 
 
 def _nice_cell(size: float) -> float:
@@ -41,10 +48,17 @@ def run(ctx, p: dict) -> None:
         xmin, ymin, xmax, ymax = shapely.total_bounds(faults.geometry.values)
         cell = _nice_cell(max(np.sqrt(max((xmax - xmin) * (ymax - ymin), 1.0) / 100.0), 1.0))
         ctx.record("cell_size_m_used", cell)
-    cells, whole = kostrov_grid(
-        faults, stations, cell_size_m=cell, keep_empty=p["keep_empty"], piece_length_m=p["piece_length_m"],
-        rake_deg=p["rake_deg"], default_dip_deg=p["default_dip_deg"],
+    from faultmap.engine import engine_map
+
+    tiles, grid = plan_kostrov_tiles(
+        faults, stations, cell_size_m=cell, tile_cells=TILE_CELLS, keep_empty=p["keep_empty"],
+        piece_length_m=p["piece_length_m"], rake_deg=p["rake_deg"], default_dip_deg=p["default_dip_deg"],
     )
+    parts = engine_map(
+        ctx.engine, kostrov_tile, tiles, progress=lambda it, total: ctx.progress(it, total=total, desc="strain")
+    )
+    cells, whole = gather_kostrov_tiles(parts, grid)
+    ctx.record("n_batches", len(tiles))
     ctx.layers["strain_cells"] = cells
     summary_area = "grid cells with faults" if not p["keep_empty"] else "whole grid"
     areas = None

@@ -1,9 +1,13 @@
 """Tool ``transect``: heave summation along transects, extension and beta.
 
-Thin wrapper around :func:`faultmap.transect.measure_transects`: takes the
-user's transects (already in the working CRS) or builds them perpendicular
-to the mean strike, adds the ``transects`` and ``transect_crossings``
-layers, one figure and the run-summary records.
+Thin wrapper around :func:`faultmap.transect.measure_transects`, run in
+batches of :data:`TRANSECTS_PER_BATCH` transects through the run's engine
+(:func:`~faultmap.transect.plan_transect_batches`,
+:func:`~faultmap.transect.measure_transect_batch`,
+:func:`~faultmap.transect.gather_transect_batches`: the same result whatever
+runs them): takes the user's transects (already in the working CRS) or
+builds them perpendicular to the mean strike, adds the ``transects`` and
+``transect_crossings`` layers, one figure and the run-summary records.
 """
 
 from __future__ import annotations
@@ -13,9 +17,19 @@ import numpy as np
 from faultmap.errors import InputError
 from faultmap.registry import Param, Tool
 from faultmap.subresolution import detection_throw_m
-from faultmap.transect import ZONE_CHOICES, auto_transects, mean_strike_deg, measure_transects
+from faultmap.transect import (
+    ZONE_CHOICES,
+    auto_transects,
+    gather_transect_batches,
+    mean_strike_deg,
+    measure_transect_batch,
+    plan_transect_batches,
+)
 
 FIGURE = "transect_extension.png"
+
+#: Transects measured as one batch (any value gives the same result).
+TRANSECTS_PER_BATCH = 16
 
 #: Exponent C of the along-line cumulative throw distribution when neither the
 #: parameter nor the scaling tool gives one (C = 1: common practice).
@@ -119,10 +133,13 @@ def run(ctx, p: dict) -> None:
         ctx.record("exponent_c_used", c)
         ctx.record("exponent_c_source", note)
 
-    t, crossings = measure_transects(
+    from faultmap.engine import engine_map
+
+    batches = plan_transect_batches(
         faults,
         stations,
         transects,
+        batch_size=TRANSECTS_PER_BATCH,
         zone=p["zone"],
         margin_m=p["margin_m"],
         rake_deg=p["rake_deg"],
@@ -136,6 +153,14 @@ def run(ctx, p: dict) -> None:
         d_min_m=p["d_min_m"],
         reproject=True,
     )
+    outs = engine_map(
+        ctx.engine, measure_transect_batch, batches,
+        progress=lambda it, total: ctx.progress(it, total=total, desc="transect"),
+    )
+    t, crossings, messages = gather_transect_batches(outs)
+    for m in messages:
+        ctx.warn(m)
+    ctx.record("n_batches", len(batches))
     if p["margin_m"] is None and p["zone"] == "faulted" and len(t):
         ctx.record("margin_m_used", float(t["margin_m"].iloc[0]))
     ctx.layers["transects"] = t

@@ -1,0 +1,220 @@
+"""Benchmark of faultmap's engines (a script, not a test): in-process vs a local Dask cluster.
+
+Builds the synthetic rift of ``bench_throw.py`` (a fault population displacing a gently rough
+surface, ``faultmap.synthetic``) as a tiled GeoTIFF in a temporary folder, then runs
+
+1. the throw step (``faultmap.throw.measure_throw``) with ``memory_budget_mb`` below the DEM's size,
+   so that it runs as many spatial batches, each reading its own DEM windows;
+2. the strain step (Kostrov sums on a fine grid, in tiles of cells: ``faultmap.strain``),
+
+in-process and on local Dask clusters of 1 and 2 worker processes (``faultmap.engine``), checks that
+every engine returns the same stations, faults and cells (bit for bit: the same batch plan), and
+reports times, ratios and memory:
+
+* the in-process peak memory of the throw step at that budget (a subprocess of ``bench_throw.py``:
+  VmHWM and the tracemalloc peak);
+* each worker's peak resident memory (VmHWM) and, in a separate run, the tracemalloc peak of its
+  numpy and Python allocations during the step.
+
+Usage::
+
+    python benchmarks/bench_scale.py            # 8000 x 8000 pixels, 2000 faults, budget 64 MB
+    python benchmarks/bench_scale.py --small    # 3000 x 3000 pixels, 300 faults, budget 16 MB
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE))
+
+
+def _vm_hwm_kb() -> int:
+    """Peak resident memory of this process, kB (Linux /proc; 0 elsewhere)."""
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1])
+    except OSError:  # pragma: no cover - not Linux
+        pass
+    return 0
+
+
+def _worker_memory() -> dict:
+    """Run on each worker: its peak resident memory and tracemalloc peak (if tracing)."""
+    import tracemalloc
+
+    peak = tracemalloc.get_traced_memory()[1] if tracemalloc.is_tracing() else 0
+    return {"vmhwm_kb": _vm_hwm_kb(), "traced_peak_b": peak}
+
+
+def _start_tracing() -> None:
+    import tracemalloc
+
+    tracemalloc.start()
+
+
+def _warm_up() -> None:
+    """Import what the tasks use, so the first timed batch does not pay for it."""
+    import faultmap.strain  # noqa: F401
+    import faultmap.throw  # noqa: F401
+
+
+def _throw(faults, dem, params, engine):
+    from faultmap.throw import measure_throw
+
+    mapper = None if engine is None else (lambda f, b, p: engine.map(f, b))
+    return measure_throw(faults, dem, params=params, mapper=mapper)
+
+
+def _strain(res, cell_m, engine):
+    from faultmap.engine import engine_map
+    from faultmap.strain import gather_kostrov_tiles, kostrov_tile, plan_kostrov_tiles
+
+    tiles, grid = plan_kostrov_tiles(res.faults, res.stations, cell_size_m=cell_m, tile_cells=64)
+    cells, whole = gather_kostrov_tiles(engine_map(engine, kostrov_tile, tiles), grid)
+    return cells, whole, len(tiles)
+
+
+def _batches_only(faults, dem, params, engine):
+    """The parallel part of the throw step alone: every batch through the engine."""
+    from functools import partial
+
+    from faultmap.engine import engine_map
+    from faultmap.throw import plan_batches, run_batch
+
+    return engine_map(engine, partial(run_batch, dem=dem, params=params), plan_batches(faults, dem, params))
+
+
+def _timed(fn, repeat):
+    best, out = None, None
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        out = fn()
+        dt = time.perf_counter() - t0
+        best = dt if best is None else min(best, dt)
+    return best, out
+
+
+def _same(a, b) -> bool:
+    import pandas as pd
+
+    try:
+        pd.testing.assert_frame_equal(a, b, check_exact=True)
+    except AssertionError:
+        return False
+    return True
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    ap.add_argument("--small", action="store_true", help="3000 x 3000 pixels, 300 faults (quick check)")
+    ap.add_argument("--budget-mb", type=float, help="memory_budget_mb of the throw step")
+    ap.add_argument("--repeat", type=int, default=2, help="timed runs per engine (best is kept)")
+    ap.add_argument("--spacing-px", type=float, default=3.0, help="throw station spacing in pixels (default 3)")
+    a = ap.parse_args(argv)
+
+    import geopandas as gpd
+    from bench_throw import PIXEL_M, build_scene
+
+    from faultmap.engine import make_engine
+    from faultmap.io.dem import open_dem
+    from faultmap.throw import plan_batches, resolve_params
+
+    n_pix, n_faults, budget = (3000, 300, 16.0) if a.small else (8000, 2000, 64.0)
+    budget = a.budget_mb or budget
+    cell_m = 250.0 if not a.small else 100.0
+    with tempfile.TemporaryDirectory(prefix="faultmap_scale_") as tmp:
+        tmp = Path(tmp)
+        tif, gpkg, t_build = build_scene(tmp, n_pix, n_faults)
+        dem = open_dem(tif)
+        faults = gpd.read_file(gpkg, layer="faults")
+        params = resolve_params(
+            dem.pixel_size, memory_budget_mb=budget, station_spacing_m=a.spacing_px * dem.pixel_size
+        )
+        n_batches = len(plan_batches(faults, dem, params))
+        dem_mb = dem.width * dem.height * 4 / 1e6
+        print(
+            f"scene: {n_pix} x {n_pix} px ({PIXEL_M:g} m), {len(faults)} faults, built in {t_build:.1f} s; "
+            f"DEM {dem_mb:.0f} MB as float32; memory_budget_mb = {budget:g} -> {n_batches} throw batches; "
+            f"station spacing {a.spacing_px:g} px"
+        )
+
+        rows = []
+        _throw(faults.iloc[:20], dem, params, None)  # warm-up (imports, page cache)
+        t_in, ref = _timed(lambda: _throw(faults, dem, params, None), a.repeat)
+        tb_in, _ = _timed(lambda: _batches_only(faults, dem, params, None), a.repeat)
+        ts_in, (cells_ref, _, n_tiles) = _timed(lambda: _strain(ref, cell_m, None), a.repeat)
+        rows.append(("in-process", t_in, ts_in, True, {}, tb_in))
+        mem_runs = {}
+        for w in (1, 2):
+            with make_engine(workers=w) as eng:
+                eng.client.run(_warm_up)
+                eng.map(abs, list(range(4 * w)))
+                t_w, res = _timed(lambda: _throw(faults, dem, params, eng), a.repeat)
+                tb_w, _ = _timed(lambda: _batches_only(faults, dem, params, eng), a.repeat)
+                ts_w, (cells, _, _) = _timed(lambda r=res: _strain(r, cell_m, eng), a.repeat)
+                same = (
+                    _same(res.stations, ref.stations) and _same(res.faults, ref.faults) and _same(cells, cells_ref)
+                )
+                rss = eng.client.run(_worker_memory)
+                rows.append((f"local cluster, {w} worker(s)", t_w, ts_w, same, rss, tb_w))
+                if w == 2:  # separate run under tracemalloc (slower; memory only)
+                    eng.client.run(_start_tracing)
+                    _throw(faults, dem, params, eng)
+                    mem_runs = eng.client.run(_worker_memory)
+
+        print(f"strain: {len(cells_ref)} cells of {cell_m:g} m in {n_tiles} tiles of 64 x 64 cells")
+        print("")
+        print(
+            f"{'engine':28s} {'throw s':>8s} {'vs in-proc':>10s} {'batches s':>9s} {'vs in-proc':>10s} "
+            f"{'strain s':>8s} {'vs in-proc':>10s}  identical"
+        )
+        for name, t, ts, same, _, tb in rows:
+            print(
+                f"{name:28s} {t:8.2f} {t_in / t:9.2f}x {tb:9.2f} {tb_in / tb:9.2f}x {ts:8.3f} {ts_in / ts:9.2f}x  "
+                f"{'yes' if same else 'NO'}"
+            )
+        t1, t2 = rows[1][1], rows[2][1]
+        b1, b2 = rows[1][5], rows[2][5]
+        s1, s2 = rows[1][2], rows[2][2]
+        serial = max(t_in - tb_in, 0.0)
+        print("")
+        print(
+            f"speed-up from 1 to 2 workers: throw step {t1 / t2:.2f}x, its batches {b1 / b2:.2f}x, "
+            f"strain {s1 / s2:.2f}x (ideal 2.00x)"
+        )
+        print(
+            f"throw step in-process: {tb_in:.2f} s in batches (parallel), {serial:.2f} s planning and gathering "
+            f"on the client (serial): at most {t_in / (serial + tb_in / 2):.2f}x with 2 workers (Amdahl)"
+        )
+
+        out = subprocess.run(
+            [sys.executable, str(HERE / "bench_throw.py"), "--child-memory", str(tif), str(gpkg), str(budget)],
+            capture_output=True, text=True, check=True,
+        )
+        m = json.loads(out.stdout.strip().splitlines()[-1])
+        print("")
+        print(f"memory (DEM {dem_mb:.0f} MB as float32, {2 * dem_mb:.0f} MB as float64; budget {budget:g} MB):")
+        print(
+            f"  in-process throw step: tracemalloc peak {m['tracemalloc_peak_b'] / 1e6:.0f} MB; resident "
+            f"{m['baseline_rss_kb'] / 1024:.0f} MB before the step, {m['peak_rss_kb'] / 1024:.0f} MB peak"
+        )
+        for name, _, _, _, rss, _ in rows[1:]:
+            peaks = ", ".join(f"{v['vmhwm_kb'] / 1024:.0f}" for v in rss.values())
+            print(f"  {name}: peak resident memory per worker (imports included) {peaks} MB")
+        if mem_runs:
+            peaks = ", ".join(f"{v['traced_peak_b'] / 1e6:.0f}" for v in mem_runs.values())
+            print(f"  local cluster, 2 workers: tracemalloc peak per worker during the throw step {peaks} MB")
+
+
+if __name__ == "__main__":
+    main()
