@@ -41,7 +41,7 @@ else:  # pragma: no cover
 __all__ = ["read_project", "run_project", "OUTPUT_KEYS", "ENGINE_KEYS"]
 
 OUTPUT_KEYS = {"gpkg": str, "figures": str, "overwrite": bool}
-ENGINE_KEYS = {"workers": int, "scheduler": str, "threads": int}
+ENGINE_KEYS = {"workers": int, "scheduler": str, "threads": int, "timeout_s": float}
 _PATH_KEYS = {"faults", "dem", "transects", "study_area"}
 
 

@@ -243,6 +243,7 @@ def _run_info(ctx: RunContext, order: list[str], params: dict, inputs: dict, out
         ("run_utc", datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")),
         ("tools", ",".join(order)),
         ("output", str(out)),
+        ("engine", ctx.engine.describe() if ctx.engine is not None else "in-process, 1 thread"),
         ("working_crs_name", ctx.crs.name if ctx.crs is not None else ""),
         ("working_crs_wkt", ctx.crs.to_wkt() if ctx.crs is not None else ""),
     ]

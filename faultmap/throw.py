@@ -324,6 +324,7 @@ def measure_throw(
     params: ThrowParams | None = None,
     mapper: Callable | None = None,
     progress: Callable | None = None,
+    min_batches: int = 1,
     **param_kwargs,
 ) -> ThrowResult:
     """Throw, heave and vertical separation along every fault trace.
@@ -345,6 +346,9 @@ def measure_throw(
         default a plain loop.
     progress : callable, optional
         ``progress(iterable, total) -> iterable`` wrapper (progress bar).
+    min_batches : int
+        Split the DEM into at least this many tiles (for parallel engines);
+        results do not depend on it.
     **param_kwargs
         Parameters of :func:`resolve_params`.
 
@@ -400,7 +404,7 @@ def measure_throw(
         warns.append(
             f"{int(partly.sum())} fault(s) run off the DEM edge (fault ids {_ids(f['fault_id'].to_numpy()[partly])}); stations beyond it are 'outside'."
         )
-    batches = plan_batches(f, dem, params)
+    batches = plan_batches(f, dem, params, min_batches=min_batches)
     from functools import partial
 
     func = partial(run_batch, dem=dem, params=params)

@@ -282,14 +282,18 @@ def _raw_frame(st: StationSet, ids, res) -> pd.DataFrame:
     return df
 
 
-def plan_batches(faults: gpd.GeoDataFrame, dem, params: ThrowParams) -> list[ThrowBatch]:
+def plan_batches(
+    faults: gpd.GeoDataFrame, dem, params: ThrowParams, *, min_batches: int = 1
+) -> list[ThrowBatch]:
     """Split the work into spatial tiles that fit the memory budget.
 
     Stations are assigned to a grid of square tiles (clamped to the DEM);
     each tile's batch carries the faults with stations in it plus every
     trace that can cross their profiles. Tiles are sized so that one
     window (tile plus the longest profile on each side) holds under 40 % of
-    ``memory_budget_mb`` as float32.
+    ``memory_budget_mb`` as float32, and small enough that the DEM gives at
+    least ``min_batches`` tiles (so that several workers have work; tiles are
+    never under 64 pixels). Results do not depend on the tiling.
 
     Returns
     -------
@@ -305,6 +309,9 @@ def plan_batches(faults: gpd.GeoDataFrame, dem, params: ThrowParams) -> list[Thr
     side_px = math.sqrt(params.memory_budget_mb * 1e6 * 0.4 / 4.0)
     size = max(64.0 * px, side_px * px - 2.0 * pad)
     xmin, ymin, xmax, ymax = bounds
+    if min_batches > 1:
+        per_side = math.ceil(math.sqrt(min_batches))
+        size = min(size, max(64.0 * px, max(xmax - xmin, ymax - ymin) / per_side))
     # a tile grid no finer than needed: equal tiles covering the DEM
     ntx = max(1, int(math.ceil((xmax - xmin) / size)))
     nty = max(1, int(math.ceil((ymax - ymin) / size)))

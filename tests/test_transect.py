@@ -457,3 +457,12 @@ def test_tool_wrapper_auto_and_user_transects():
     assert ctx2.records["transect.exponent_c_used"] == pytest.approx(1.2)
     assert ctx2.records["transect.transect_source"] == "user"
     assert ctx2.layers["transects"]["n_crossings"].iloc[0] == 6
+
+
+def test_fraction_check_value_above_half():
+    # Marrett & Allmendinger (1992) relation (methods.md): with C = 1.2, D_min 0.01, D_t 20, D_max 2000 the
+    # fraction below detection is 0.8558 (verified check value) - more than half: the tool must warn.
+    from faultmap.subresolution import fraction_below_detection
+
+    f = fraction_below_detection(20.0, d_min=0.01, d_max=2000.0, exponent_c=1.2)
+    assert abs(float(f) - 0.8558) < 5e-4

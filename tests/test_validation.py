@@ -321,3 +321,8 @@ def test_demo_runs_every_tool_with_figures(tmp_path):
     # a number, not only files: the demo's faults all come back with their names
     faults = pyogrio.read_dataframe(res.gpkg, layer="faults")
     assert math.isclose(faults["length_m"].sum(), pd.read_csv(paths["truth"])["length_m"].sum(), rel_tol=1e-6)
+    # an extrapolated sub-resolution correction that dominates is flagged, never silent
+    kv = dict(zip(info["key"], info["value"], strict=True))
+    frac = float(kv.get("transect.fraction_below_detection", "nan"))
+    warned = any("rough upper estimate" in v for k, v in kv.items() if k.startswith("warning."))
+    assert warned == (frac > 0.5)

@@ -43,7 +43,10 @@ def run(ctx, p: dict) -> None:
         smooth_stations=p["smooth_stations"],
         min_stations_per_fault=p["min_stations_per_fault"],
     )
-    n_batches = len(plan_batches(faults, dem, params))
+    engine = ctx.engine
+    parallel = getattr(engine, "parallelism", 1) if engine is not None else 1
+    min_batches = 4 * parallel if parallel > 1 else 1
+    n_batches = len(plan_batches(faults, dem, params, min_batches=min_batches))
 
     def progress(iterable, total):
         return ctx.progress(iterable, total=total, desc="throw")
@@ -54,7 +57,7 @@ def run(ctx, p: dict) -> None:
         def mapper(func, batches, prog):
             return ctx.engine.map(func, batches, progress=prog)
 
-    res = measure_throw(faults, dem, params=params, mapper=mapper, progress=progress)
+    res = measure_throw(faults, dem, params=params, mapper=mapper, progress=progress, min_batches=min_batches)
     for w in res.warnings:
         ctx.warn(w)
     _relink(ctx, res, params)

@@ -175,7 +175,14 @@ def run(ctx, p: dict) -> None:
         ec = t.loc[ok, "extension_corrected"].to_numpy(dtype=float)
         if use_sub and np.isfinite(ec).any():
             ctx.record("median_extension_corrected", float(np.median(ec[np.isfinite(ec)])))
-            ctx.record("fraction_below_detection", float(t.loc[ok, "fraction_below_detection"].iloc[0]))
+            frac = float(t.loc[ok, "fraction_below_detection"].iloc[0])
+            ctx.record("fraction_below_detection", frac)
+            if frac > 0.5:
+                ctx.warn(
+                    f"the sub-resolution correction puts {100 * frac:.0f} % of the extension on faults below "
+                    "detection: it is an extrapolation far beyond the measured faults (it depends strongly on the "
+                    "exponent C and on d_min); read extension_corrected as a rough upper estimate, never as a measurement."
+                )
         ctx.info(
             f"{int(ok.sum())} transects measured; median extension {100 * np.median(t.loc[ok, 'extension']):.2f} %"
             f" (beta {np.median(t.loc[ok, 'beta']):.4f})."
