@@ -31,8 +31,8 @@ import numpy as np
 import pandas as pd
 import shapely
 
-from faultmap.errors import CRSError, FaultmapWarning, GeometryError, InputError, ParameterError
-from faultmap.transect import _check_crs_metric, _check_faults, _check_rake, _ids, _rake_factor, throw_at
+from faultmap.errors import FaultmapWarning, GeometryError, InputError, ParameterError
+from faultmap.transect import _check_faults, _check_rake, _ids, _in_faults_crs, _rake_factor, throw_at
 
 __all__ = [
     "principal_strains",
@@ -98,6 +98,25 @@ def _check_cell_size(cell_size_m: float) -> None:
 def _check_piece(piece_length_m: float | None) -> None:
     if piece_length_m is not None and (not np.isfinite(piece_length_m) or piece_length_m <= 0):
         raise ParameterError(f"piece_length_m must be a positive distance in m, got {piece_length_m!r}.")
+
+
+def _cell_grid(faults: gpd.GeoDataFrame, cell_size_m: float, *, keep_empty: bool, max_cells: int):
+    """Fault ids and lines, and the cell grid over them: (fid, geoms, c, x0, y0, nx, ny).
+
+    The origin is the lower-left bound of the traces floored to a multiple
+    of the cell size ``c`` (m); ``nx`` by ``ny`` cells cover them.
+    """
+    c = float(cell_size_m)
+    fid, geoms = _check_faults(faults)
+    if len(geoms) == 0:
+        raise InputError("faults layer is empty; nothing to sum.")
+    xmin, ymin, xmax, ymax = shapely.total_bounds(geoms)
+    x0, y0 = np.floor(xmin / c) * c, np.floor(ymin / c) * c
+    nx = int(np.floor((xmax - x0) / c)) + 1
+    ny = int(np.floor((ymax - y0) / c)) + 1
+    if keep_empty and nx * ny > max_cells:
+        raise ParameterError(f"cell_size_m {c:g} m gives {nx * ny} cells (limit {max_cells}); use larger cells.")
+    return fid, geoms, c, x0, y0, nx, ny
 
 
 def _grid_breaks(
@@ -390,16 +409,7 @@ def kostrov_grid(
     """
     _check_cell_size(cell_size_m)
     _check_piece(piece_length_m)
-    c = float(cell_size_m)
-    fid, geoms = _check_faults(faults)
-    if len(geoms) == 0:
-        raise InputError("faults layer is empty; nothing to sum.")
-    xmin, ymin, xmax, ymax = shapely.total_bounds(geoms)
-    x0, y0 = np.floor(xmin / c) * c, np.floor(ymin / c) * c
-    nx = int(np.floor((xmax - x0) / c)) + 1
-    ny = int(np.floor((ymax - y0) / c)) + 1
-    if keep_empty and nx * ny > max_cells:
-        raise ParameterError(f"cell_size_m {c:g} m gives {nx * ny} cells (limit {max_cells}); use larger cells.")
+    fid, geoms, c, x0, y0, nx, ny = _cell_grid(faults, cell_size_m, keep_empty=keep_empty, max_cells=max_cells)
     pieces = fault_pieces(
         faults, stations, piece_length_m=piece_length_m if piece_length_m is not None else c / 10.0,
         grid_origin=(x0, y0), cell_size_m=c, rake_deg=rake_deg, default_dip_deg=default_dip_deg,
@@ -485,17 +495,7 @@ def kostrov_polygons(
     """
     _check_piece(piece_length_m)
     fid, geoms = _check_faults(faults)
-    if not isinstance(polygons, gpd.GeoDataFrame):
-        raise InputError("polygons must be a GeoDataFrame of Polygons.")
-    if polygons.crs != faults.crs:
-        if reproject and polygons.crs is not None and faults.crs is not None:
-            polygons = polygons.to_crs(faults.crs)
-        else:
-            raise CRSError(
-                f"polygons CRS ({getattr(polygons.crs, 'name', None)}) differs from the faults CRS "
-                f"({getattr(faults.crs, 'name', None)}); reproject the polygons (reproject=True)."
-            )
-    _check_crs_metric(polygons.crs, "polygons")
+    polygons = _in_faults_crs(polygons, faults, "polygons", "Polygons", reproject=reproject)
     out = polygons.copy()
     if "polygon_id" in out.columns:
         pid = out["polygon_id"].to_numpy()
@@ -740,16 +740,7 @@ def plan_kostrov_tiles(
     tile_cells = int(tile_cells)
     if rake_deg is not None:
         _check_rake(np.array([float(rake_deg)]), "rake_deg")
-    c = float(cell_size_m)
-    fid, geoms = _check_faults(faults)
-    if len(geoms) == 0:
-        raise InputError("faults layer is empty; nothing to sum.")
-    xmin, ymin, xmax, ymax = shapely.total_bounds(geoms)
-    x0, y0 = np.floor(xmin / c) * c, np.floor(ymin / c) * c
-    nx = int(np.floor((xmax - x0) / c)) + 1
-    ny = int(np.floor((ymax - y0) / c)) + 1
-    if keep_empty and nx * ny > max_cells:
-        raise ParameterError(f"cell_size_m {c:g} m gives {nx * ny} cells (limit {max_cells}); use larger cells.")
+    fid, geoms, c, x0, y0, nx, ny = _cell_grid(faults, cell_size_m, keep_empty=keep_empty, max_cells=max_cells)
     grid = {
         "x0": float(x0), "y0": float(y0), "cell_size_m": c, "nx": nx, "ny": ny,
         "keep_empty": bool(keep_empty), "max_cells": int(max_cells), "crs": faults.crs,

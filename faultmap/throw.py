@@ -56,6 +56,7 @@ from faultmap.along_strike import (  # noqa: F401  (re-exported)
 )
 from faultmap.errors import CRSError, InputError, ParameterError
 from faultmap.linkage import _station_lookup, linkage_zones, system_profile  # noqa: F401  (re-exported)
+from faultmap.prepare import _ids
 from faultmap.profiles import RAW_COLUMNS as _RAW_COLUMNS
 from faultmap.profiles import measure_profiles, sample_profiles  # noqa: F401  (re-exported)
 from faultmap.scarp_fit import (  # noqa: F401  (re-exported)
@@ -523,8 +524,3 @@ def measure_throw(
     return ThrowResult(
         faults=f, stations=stations, linkage_zones=lz, warnings=warns, params=params, n_samples=n_samples
     )
-
-
-def _ids(values, limit: int = 10) -> str:
-    v = [str(x) for x in np.asarray(values)[:limit]]
-    return ", ".join(v) + (" ..." if len(values) > limit else "")

@@ -108,6 +108,40 @@ def _as_lines(gdf: gpd.GeoDataFrame, ids: np.ndarray, what: str) -> np.ndarray:
     return geoms
 
 
+def _in_faults_crs(layer, faults: gpd.GeoDataFrame, what: str, kind: str, *, reproject: bool):
+    """``layer`` checked as a GeoDataFrame, in the faults' CRS (reprojected if allowed), metric."""
+    if not isinstance(layer, gpd.GeoDataFrame):
+        raise InputError(f"{what} must be a GeoDataFrame of {kind}.")
+    if layer.crs != faults.crs:
+        if reproject and layer.crs is not None and faults.crs is not None:
+            layer = layer.to_crs(faults.crs)
+        else:
+            raise CRSError(
+                f"{what} CRS ({getattr(layer.crs, 'name', None)}) differs from the faults CRS "
+                f"({getattr(faults.crs, 'name', None)}); reproject the {what} (reproject=True)."
+            )
+    _check_crs_metric(layer.crs, what)
+    return layer
+
+
+def _transect_lines(transects: gpd.GeoDataFrame) -> tuple[gpd.GeoDataFrame, np.ndarray, np.ndarray, np.ndarray]:
+    """Copy of the transects with ``transect_id`` (given and unique, or 1..n), their lines and lengths, m."""
+    out = transects.copy()
+    if "transect_id" in out.columns:
+        tid = out["transect_id"].to_numpy()
+        if pd.Index(tid).has_duplicates:
+            raise InputError("transects: duplicate transect_id values; ids must be unique.")
+    else:
+        tid = np.arange(1, len(out) + 1)
+        out["transect_id"] = tid
+    tgeoms = _as_lines(out, tid, "transect")
+    tlen = shapely.length(tgeoms)
+    zero = ~(tlen > 0)
+    if zero.any():
+        raise InputError(f"transect {_ids(tid[zero])}: zero length; remove it or give it two distinct ends.")
+    return out, tid, tgeoms, tlen
+
+
 def _check_faults(faults: gpd.GeoDataFrame) -> tuple[np.ndarray, np.ndarray]:
     """Validate the faults layer; return (fault_id array, LineString array)."""
     if not isinstance(faults, gpd.GeoDataFrame):
@@ -585,53 +619,13 @@ def measure_transects(
         default_dip_deg, rake_deg, d_min_m,
     )
     fid, fgeoms = _check_faults(faults)
-    if not isinstance(transects, gpd.GeoDataFrame):
-        raise InputError("transects must be a GeoDataFrame of LineStrings.")
-    if transects.crs != faults.crs:
-        if reproject and transects.crs is not None and faults.crs is not None:
-            transects = transects.to_crs(faults.crs)
-        else:
-            raise CRSError(
-                f"transects CRS ({getattr(transects.crs, 'name', None)}) differs from the faults CRS "
-                f"({getattr(faults.crs, 'name', None)}); reproject the transects (reproject=True)."
-            )
-    _check_crs_metric(transects.crs, "transects")
-    out = transects.copy()
-    if "transect_id" in out.columns:
-        tid = out["transect_id"].to_numpy()
-        if pd.Index(tid).has_duplicates:
-            raise InputError("transects: duplicate transect_id values; ids must be unique.")
-    else:
-        tid = np.arange(1, len(out) + 1)
-        out["transect_id"] = tid
-    tgeoms = _as_lines(out, tid, "transect")
-    tlen = shapely.length(tgeoms)
-    zero = ~(tlen > 0)
-    if zero.any():
-        raise InputError(f"transect {_ids(tid[zero])}: zero length; remove it or give it two distinct ends.")
+    transects = _in_faults_crs(transects, faults, "transects", "LineStrings", reproject=reproject)
+    out, tid, tgeoms, tlen = _transect_lines(transects)
     nt = len(tgeoms)
 
     # ---- crossings (vectorised STRtree query + intersection)
     tree = shapely.STRtree(fgeoms)
-    qi, qf = tree.query(tgeoms, predicate="intersects")
-    inter = shapely.intersection(tgeoms[qi], fgeoms[qf])
-    parts, pidx = shapely.get_parts(inter, return_index=True)
-    ti, fi = qi[pidx], qf[pidx]
-    keep = ~shapely.is_empty(parts)
-    parts, ti, fi = parts[keep], ti[keep], fi[keep]
-    overlap = shapely.get_type_id(parts) != 0
-    if overlap.any():
-        warnings.warn(
-            f"transect {_ids(np.unique(tid[ti[overlap]]))}: runs along a fault trace; the middle of the "
-            "shared stretch is used as the crossing. Move the transect off the trace.",
-            FaultmapWarning,
-            stacklevel=2,
-        )
-        parts = parts.copy()
-        parts[overlap] = shapely.line_interpolate_point(parts[overlap], 0.5, normalized=True)
-    t_pos = shapely.line_locate_point(tgeoms[ti], parts)
-    order = np.lexsort((t_pos, ti))
-    parts, ti, fi, t_pos = parts[order], ti[order], fi[order], t_pos[order]
+    ti, fi, t_pos, parts = _crossing_positions(tgeoms, fgeoms, tree=tree, warn_ids=tid)
     f_dist = shapely.line_locate_point(fgeoms[fi], parts)
     nc = len(parts)
 
@@ -980,9 +974,22 @@ class TransectBatch:
     options: dict
 
 
-def _crossing_positions(tgeoms: np.ndarray, fgeoms: np.ndarray):
-    """Crossings of transects and traces, sorted along each transect (as in :func:`measure_transects`)."""
-    tree = shapely.STRtree(fgeoms)
+def _crossing_positions(
+    tgeoms: np.ndarray,
+    fgeoms: np.ndarray,
+    *,
+    tree: shapely.STRtree | None = None,
+    warn_ids: np.ndarray | None = None,
+):
+    """Crossings of transects and traces, sorted along each transect: (ti, fi, t_pos, parts).
+
+    One vectorised STRtree query and intersection. Where a transect runs
+    along a trace, the middle of the shared stretch is the crossing; with
+    ``warn_ids`` (transect ids) that is warned about, for the caller of the
+    function that calls this one.
+    """
+    if tree is None:
+        tree = shapely.STRtree(fgeoms)
     qi, qf = tree.query(tgeoms, predicate="intersects")
     inter = shapely.intersection(tgeoms[qi], fgeoms[qf])
     parts, pidx = shapely.get_parts(inter, return_index=True)
@@ -991,6 +998,13 @@ def _crossing_positions(tgeoms: np.ndarray, fgeoms: np.ndarray):
     parts, ti, fi = parts[keep], ti[keep], fi[keep]
     overlap = shapely.get_type_id(parts) != 0
     if overlap.any():
+        if warn_ids is not None:
+            warnings.warn(
+                f"transect {_ids(np.unique(warn_ids[ti[overlap]]))}: runs along a fault trace; the middle of the "
+                "shared stretch is used as the crossing. Move the transect off the trace.",
+                FaultmapWarning,
+                stacklevel=3,
+            )
         parts = parts.copy()
         parts[overlap] = shapely.line_interpolate_point(parts[overlap], 0.5, normalized=True)
     t_pos = shapely.line_locate_point(tgeoms[ti], parts)
@@ -1074,30 +1088,8 @@ def plan_transect_batches(
     if isinstance(batch_size, bool) or int(batch_size) != batch_size or batch_size < 1:
         raise ParameterError(f"batch_size must be a whole number >= 1, got {batch_size!r}.")
     fid, fgeoms = _check_faults(faults)
-    if not isinstance(transects, gpd.GeoDataFrame):
-        raise InputError("transects must be a GeoDataFrame of LineStrings.")
-    if transects.crs != faults.crs:
-        if reproject and transects.crs is not None and faults.crs is not None:
-            transects = transects.to_crs(faults.crs)
-        else:
-            raise CRSError(
-                f"transects CRS ({getattr(transects.crs, 'name', None)}) differs from the faults CRS "
-                f"({getattr(faults.crs, 'name', None)}); reproject the transects (reproject=True)."
-            )
-    _check_crs_metric(transects.crs, "transects")
-    tr = transects.copy()
-    if "transect_id" in tr.columns:
-        tid = tr["transect_id"].to_numpy()
-        if pd.Index(tid).has_duplicates:
-            raise InputError("transects: duplicate transect_id values; ids must be unique.")
-    else:
-        tid = np.arange(1, len(tr) + 1)
-        tr["transect_id"] = tid
-    tgeoms = _as_lines(tr, tid, "transect")
-    tlen = shapely.length(tgeoms)
-    zero = ~(tlen > 0)
-    if zero.any():
-        raise InputError(f"transect {_ids(tid[zero])}: zero length; remove it or give it two distinct ends.")
+    transects = _in_faults_crs(transects, faults, "transects", "LineStrings", reproject=reproject)
+    tr, tid, tgeoms, tlen = _transect_lines(transects)
     nt = len(tgeoms)
     if nt == 0:
         return []

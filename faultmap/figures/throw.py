@@ -15,6 +15,8 @@ from matplotlib.colors import Normalize
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
+from faultmap.figures.extension import hillshade as _shade
+
 __all__ = ["hillshade", "throw_map", "throw_profiles", "system_profiles"]
 
 _STATUS_STYLE = {
@@ -41,21 +43,13 @@ def hillshade(z, transform, *, azimuth_deg: float = 315.0, altitude_deg: float =
     -----
     Lambertian shading of the surface normal from central-difference
     gradients (common practice; e.g. Burrough & McDonnell 1998, Principles
-    of GIS, from memory).
+    of GIS, from memory); the one implementation is
+    :func:`faultmap.figures.extension.hillshade`.
     """
-    z = np.asarray(z, dtype=float)
-    if z.size == 0 or min(z.shape) < 2:
-        return np.full(z.shape, np.nan)
-    dx, dy = abs(transform.a), abs(transform.e)
-    gy, gx = np.gradient(z, dy, dx)  # rows run south: d/d(north) = -d/d(row)
-    gy = -gy
-    az = math.radians(azimuth_deg)
-    alt = math.radians(altitude_deg)
-    # light direction (east, north, up)
-    lx, ly, lz = math.sin(az) * math.cos(alt), math.cos(az) * math.cos(alt), math.sin(alt)
-    norm = np.sqrt(1.0 + gx * gx + gy * gy)
-    shade = (-gx * lx - gy * ly + lz) / norm
-    return np.clip(shade, 0.0, 1.0)
+    return _shade(
+        z, pixel_size_x_m=abs(transform.a), pixel_size_y_m=abs(transform.e),
+        azimuth_deg=azimuth_deg, altitude_deg=altitude_deg,
+    )
 
 
 def _extent(arr, transform):
