@@ -173,7 +173,7 @@ def demo_grid(scale: float = 1.0) -> dict[str, Any]:
 
 
 def demo_faults() -> gpd.GeoDataFrame:
-    """The scenario's faults as built (right-hand-rule traces, true attributes).
+    """Return the scenario's faults as built (right-hand-rule traces, true attributes).
 
     Returns
     -------
@@ -241,7 +241,7 @@ def demo_transects() -> gpd.GeoDataFrame:
 
 
 def demo_nodata_polygons() -> list[Polygon]:
-    """The nodata patch of the demo DEM (a gap over the NNE tip of the Orrin Fault)."""
+    """Return the nodata patch of the demo DEM (a gap over the NNE tip of the Orrin Fault)."""
     u = np.array([2.3, 3.3, 4.3, 4.1, 3.0, 2.2])
     v = np.array([1.9, 1.6, 2.1, 3.2, 3.4, 2.8])
     return [Polygon(_uv_to_xy(u, v))]
@@ -276,7 +276,7 @@ def build_demo_scene(scale: float = 1.0) -> tuple[np.ndarray, Any, SceneTruth]:
 
 
 def _user_layer(faults: gpd.GeoDataFrame) -> gpd.GeoDataFrame:
-    """The faults as a user would hand them in."""
+    """Return the faults as a user would hand them in."""
     geoms = []
     for r in faults.itertuples(index=False):
         coords = np.asarray(r.geometry.coords)

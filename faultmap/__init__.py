@@ -1,5 +1,7 @@
-"""faultmap: normal-fault traces and a DEM in; throw, scaling, extension, strain,
-rift width and hazard screening out, as GeoPackage layers and figures.
+"""faultmap: measured numbers from normal-fault traces and a DEM.
+
+Throw, scaling, extension, strain, rift width and hazard screening come out as
+GeoPackage layers and figures.
 
 The Python API mirrors the command line: :func:`run_tools` runs named tools,
 :func:`run_project` runs a project (TOML) file. Analyses live in modules named

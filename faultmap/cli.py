@@ -91,7 +91,7 @@ def _parse_fields(items) -> dict:
 
 
 def tool_command(tool: Tool | BrokenTool, state: _State) -> click.Command:
-    """The click command of one tool."""
+    """Build the click command of one tool."""
     if isinstance(tool, BrokenTool):
 
         def broken(**_):
@@ -159,7 +159,7 @@ def _report(res, state: _State) -> None:
 
 
 def build_cli() -> click.Group:
-    """The ``faultmap`` group with one subcommand per registered tool."""
+    """Build the ``faultmap`` group with one subcommand per registered tool."""
     state = _State()
 
     @click.group(context_settings={"help_option_names": ["-h", "--help"]})

@@ -12,7 +12,7 @@ __all__ = ["local_metric_crs", "check_metric"]
 
 
 def local_metric_crs(lon: float, lat: float) -> CRS:
-    """A UTM CRS (WGS 84) for the zone holding (lon, lat), degrees.
+    """Return a UTM CRS (WGS 84) for the zone holding (lon, lat), degrees.
 
     Near the poles (|lat| > 84) a polar stereographic CRS is returned.
 
@@ -27,7 +27,7 @@ def local_metric_crs(lon: float, lat: float) -> CRS:
         return CRS.from_epsg(3413)
     if lat < -80:
         return CRS.from_epsg(3031)
-    zone = int(math.floor((((lon + 180.0) % 360.0) / 6.0))) + 1
+    zone = int(math.floor(((lon + 180.0) % 360.0) / 6.0)) + 1
     return CRS.from_epsg((32600 if lat >= 0 else 32700) + zone)
 
 

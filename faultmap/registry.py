@@ -204,7 +204,7 @@ class Tool:
     source: str = field(default="", compare=False)
 
     def param(self, name: str) -> Param:
-        """The parameter called ``name``."""
+        """Return the parameter called ``name``."""
         for p in self.params:
             if p.name == name:
                 return p
@@ -218,7 +218,7 @@ class Tool:
         return [p.name for p in self.params]
 
     def resolve_params(self, given: dict | None = None, *, where: str = "") -> dict:
-        """Validated parameter values: defaults overlaid with ``given``.
+        """Return validated parameter values: defaults overlaid with ``given``.
 
         Raises
         ------
@@ -247,7 +247,7 @@ class BrokenTool:
 
 
 def not_available(name: str) -> Callable[..., None]:
-    """A run function for a declared tool that is not built yet."""
+    """Return a run function for a declared tool that is not built yet."""
 
     def _run(ctx, params):  # noqa: ARG001
         raise NotAvailableError(f"tool '{name}' is not available yet in this version of faultmap.")

@@ -12,7 +12,6 @@ gamma 1e-3 to 1e-1, from memory).
 from __future__ import annotations
 
 import math
-import tomllib
 
 import geopandas as gpd
 import numpy as np
@@ -21,6 +20,7 @@ import pyogrio
 import pytest
 import rasterio
 import shapely
+import tomllib
 from pyproj import CRS
 from scipy import ndimage
 
@@ -124,7 +124,7 @@ def test_fault_layer_looks_like_a_users(user_faults, truth):
     # Digitising direction: against the right-hand rule for some traces, with
     # it for others (dip direction 90 deg clockwise of the trace azimuth).
     rel = []
-    for g, ddir in zip(f.geometry, truth["dip_dir_deg"]):
+    for g, ddir in zip(f.geometry, truth["dip_dir_deg"], strict=False):
         xy = np.asarray(_merged(g).coords)
         az = math.degrees(math.atan2(*(xy[-1] - xy[0]))) % 360.0
         rel.append(round(((ddir - az) % 360.0) / 90.0))
@@ -160,8 +160,8 @@ def test_scenario_is_a_graben_with_scaled_faults(truth, user_faults):
     linked = sizes[(sizes >= 2) & (sizes <= 3)].index
     assert len(linked) >= 1
     for sid in linked:
-        geoms = [_merged(g) for g, s in zip(user_faults.geometry, t["system_id"]) if s == sid]
-        for a, c in zip(geoms[:-1], geoms[1:]):
+        geoms = [_merged(g) for g, s in zip(user_faults.geometry, t["system_id"], strict=False) if s == sid]
+        for a, c in zip(geoms[:-1], geoms[1:], strict=False):
             tips = [shapely.Point(a.coords[0]), shapely.Point(a.coords[-1])]
             assert min(c.distance(p) for p in tips) < 1000.0
     # Unlinked faults are further apart than the relay step-overs.

@@ -104,7 +104,7 @@ def test_default_dip_and_sources():
 def test_digitising_direction_never_matters():
     rng = np.random.default_rng(3)
     lines = []
-    for k in range(12):
+    for _k in range(12):
         x = rng.uniform(0, 20000, 1)[0]
         y = rng.uniform(0, 20000, 1)[0]
         pts = np.c_[x + np.cumsum(rng.normal(30, 40, 6)), y + np.cumsum(rng.uniform(200, 600, 6))]
@@ -174,7 +174,7 @@ def test_lengths_match_geodesic_lengths(tmp_path):
     faults = res.layers["faults"]
     assert CRS.from_user_input(faults.crs).equals(CRS.from_epsg(32753))  # zone 53 S holds 134.2 E
     geod = Geod(ellps="WGS84")
-    for line, got in zip(lines, faults["length_m"]):
+    for line, got in zip(lines, faults["length_m"], strict=False):
         ref = geod.line_length(*line.xy)
         assert got / ref == pytest.approx(1.0, abs=1.2e-3)
     assert any("geographic" in n for n in res.run_info["value"])

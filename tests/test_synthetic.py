@@ -369,7 +369,7 @@ def test_population_recovers_displacement_length_exponent(exponent):
                              scatter_sigma=0.2, extent=(0.0, 0.0, 60000.0, 60000.0),
                              strike_deg=30.0, strike_scatter_deg=5.0, dip_deg=(50.0, 70.0),
                              min_spacing_m=300.0, seed=5)
-    assert all(a.equals(b) for a, b in zip(pop.geometry, again.geometry))
+    assert all(a.equals(b) for a, b in zip(pop.geometry, again.geometry, strict=False))
     np.testing.assert_array_equal(pop["max_throw_m"], again["max_throw_m"])
     assert pop["dip_deg"].between(50.0, 70.0).all()
     np.testing.assert_allclose((pop["dip_dir_deg"] - pop["strike_deg"]) % 360.0, 90.0)

@@ -1,0 +1,1 @@
+"""Figures: matplotlib Figure objects built from analysis results (no pyplot state)."""

@@ -1,0 +1,1 @@
+"""Input and output at the edges: vector layers, the lazy DEM, atomic GeoPackage writing."""

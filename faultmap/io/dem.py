@@ -147,7 +147,8 @@ class Dem:
             return np.empty((0, 0)), self.transform
         rows, cols = win
         arr = self.read_rows_cols(rows, cols)
-        from rasterio.windows import Window, transform as win_transform
+        from rasterio.windows import Window
+        from rasterio.windows import transform as win_transform
 
         wt = win_transform(
             Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start),
@@ -195,7 +196,7 @@ class Dem:
         keys_sorted = key[order]
         starts = np.flatnonzero(np.r_[True, keys_sorted[1:] != keys_sorted[:-1]])
         ends = np.r_[starts[1:], order.size]
-        for s, e in zip(starts, ends):  # one read per tile of points, not per point
+        for s, e in zip(starts, ends, strict=True):  # one read per tile of points, not per point
             sel = order[s:e]
             r0 = max(int(math.floor(row[sel].min())), 0)
             r1 = min(int(math.floor(row[sel].max())) + 2, self.height)
