@@ -85,3 +85,18 @@ def test_python_api_same_names(scene, tmp_path):
     res = faultmap.run_tools(["prepare"], inputs={"faults": scene["faults"], "dem": scene["dem"]},
                              params={"prepare": {"dip_deg": 65.0}}, out=tmp_path / "api.gpkg")
     assert (res.layers["faults"]["dip_deg"] == 65.0).any()
+
+
+def test_inputs_are_never_modified(scene, tmp_path):
+    import hashlib
+
+    def sha(p):
+        return hashlib.sha256(p.read_bytes()).hexdigest()
+
+    before = {p: sha(p) for p in (scene["faults"], scene["dem"])}
+    mtimes = {p: p.stat().st_mtime_ns for p in before}
+    faultmap.run_tools(["throw"], inputs={"faults": scene["faults"], "dem": scene["dem"]},
+                       out=tmp_path / "t.gpkg", figures=tmp_path / "figs", quiet=True)
+    assert {p: sha(p) for p in before} == before
+    assert {p: p.stat().st_mtime_ns for p in before} == mtimes
+    assert not list(scene["dir"].glob("*.aux.xml"))  # no sidecar written beside the DEM
