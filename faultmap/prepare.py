@@ -214,7 +214,16 @@ def condition_traces(
     keep = ~missing
     base = gdf.loc[keep].copy()
     base["source_fid"] = fid[keep]
-    base = base.set_geometry(shapely.force_2d(base.geometry.to_numpy()))
+    geoms2d = shapely.force_2d(base.geometry.to_numpy())
+    # parts of one feature that share an end point are one trace digitised in pieces: join them
+    multi = shapely.get_type_id(geoms2d) == 5
+    if multi.any():
+        before = shapely.get_num_geometries(geoms2d[multi])
+        geoms2d[multi] = shapely.line_merge(geoms2d[multi])
+        joined = int((before - shapely.get_num_geometries(geoms2d[multi])).sum())
+        if joined:
+            warnings.append(f"{where}: joined {joined} parts of multi-part features that meet end to end.")
+    base = base.set_geometry(geoms2d)
     parts = base.explode(index_parts=False, ignore_index=True)
     if len(parts) > len(base):
         warnings.append(f"{where}: split {len(parts) - len(base)} extra parts of multi-part features into traces.")

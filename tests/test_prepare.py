@@ -91,6 +91,17 @@ def test_all_zero_length_is_an_error():
         condition_traces(g)
 
 
+def test_touching_parts_are_joined_separate_parts_split():
+    # A feature digitised in two pieces that meet end to end is one trace (common practice);
+    # pieces with a gap are separate traces.
+    touching = shapely.MultiLineString([[(0, 0), (0, 500)], [(0, 500), (30, 1500)]])
+    apart = shapely.MultiLineString([[(900, 0), (900, 500)], [(910, 600), (910, 1500)]])
+    out, warns = condition_traces(_gdf([touching, apart]))
+    assert list(out["source_fid"]) == [1, 2, 2]
+    assert out["length_m"].iloc[0] == pytest.approx(500 + np.hypot(30, 1000))
+    assert any("joined 1 parts" in w for w in warns) and any("split 1 extra parts" in w for w in warns)
+
+
 def test_default_dip_and_sources():
     g = _gdf([shapely.LineString([(0, 0), (0, 100)])] * 1 + [shapely.LineString([(50, 0), (50, 100)])],
              dip=[None, 45.0], dip_dir=[None, 90.0])
