@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 import shapely
 
+from faultmap.directions import axial_mean_deg
 from faultmap.stations import strike_axis_deg
 
 __all__ = ["system_profile", "linkage_zones"]
@@ -67,7 +68,7 @@ def system_profile(
     """
     lookup = _station_lookup(stations) if _lookup is None else _lookup
     lines = faults_sys.geometry.to_numpy()
-    ax_deg = float(_axial_mean(strike_axis_deg(lines), shapely.length(lines)))
+    ax_deg = float(axial_mean_deg(strike_axis_deg(lines), shapely.length(lines))[0])
     ax = math.radians(ax_deg)
     ux, uy = math.sin(ax), math.cos(ax)
     c = shapely.get_coordinates(shapely.centroid(shapely.union_all(lines)))[0]
@@ -218,11 +219,3 @@ def linkage_zones(
     if not rows:
         return empty
     return gpd.GeoDataFrame(rows, geometry=geoms, crs=faults.crs)
-
-
-def _axial_mean(axes_deg, weights) -> float:
-    a2 = np.radians(2.0 * np.asarray(axes_deg, dtype=float))
-    w = np.asarray(weights, dtype=float)
-    return (
-        math.degrees(math.atan2(float((w * np.sin(a2)).sum()), float((w * np.cos(a2)).sum()))) / 2.0
-    ) % 180.0

@@ -17,6 +17,8 @@ import numpy as np
 from shapely.geometry import LineString
 
 from faultmap.axis_frame import _axis_arrays, axis_coordinates, axis_point_direction
+from faultmap.directions import axial_mean_deg as _axial_mean
+from faultmap.directions import axial_resultant_length
 from faultmap.errors import AnalysisError, GeometryError, ParameterError
 from faultmap.rift_heave import _check_faults, _choose_weight, _pieces, _weighted_quantiles
 
@@ -48,11 +50,10 @@ def axial_mean_deg(angles_deg: np.ndarray, weights: np.ndarray | None = None) ->
     ok = np.isfinite(a) & np.isfinite(w) & (w > 0)
     if not ok.any():
         raise AnalysisError("no fault with a usable strike and weight: check the traces and their heave")
-    c = float(np.sum(w[ok] * np.cos(a[ok])))
-    s = float(np.sum(w[ok] * np.sin(a[ok])))
-    if math.hypot(c, s) < 1e-9 * float(np.sum(w[ok])):
+    az = np.asarray(angles_deg, dtype=float)[ok]
+    if axial_resultant_length(az, w[ok]) < 1e-9:
         raise AnalysisError("fault strikes have no preferred direction: give the rift axis as a line")
-    return (math.degrees(math.atan2(s, c)) / 2.0) % 180.0
+    return float(_axial_mean(az, w[ok])[0])
 
 
 def _binned(s: np.ndarray, w: np.ndarray, cols: list[np.ndarray], bin_m: float) -> tuple[np.ndarray, np.ndarray, list[np.ndarray]]:

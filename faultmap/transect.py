@@ -41,6 +41,7 @@ import pandas as pd
 import shapely
 from scipy import sparse
 
+from faultmap.directions import axial_mean_deg, axial_resultant_length, segment_azimuths
 from faultmap.errors import (
     AnalysisError,
     CRSError,
@@ -216,17 +217,10 @@ def mean_strike_deg(faults: gpd.GeoDataFrame) -> float:
     (cos 2a, sin 2a); the mean strike is half the angle of the resultant.
     Digitising direction does not matter.
     """
-    geoms = np.asarray(faults.geometry.values, dtype=object)
-    coords, idx = shapely.get_coordinates(geoms, return_index=True)
-    same = idx[1:] == idx[:-1]
-    d = np.diff(coords, axis=0)[same]
-    seg_len = np.hypot(d[:, 0], d[:, 1])
-    a2 = 2.0 * np.arctan2(d[:, 0], d[:, 1])
-    c, s = np.sum(seg_len * np.cos(a2)), np.sum(seg_len * np.sin(a2))
-    total = seg_len.sum()
-    if total <= 0 or np.hypot(c, s) < 1e-9 * total:
+    _, az, seg_len = segment_azimuths(np.asarray(faults.geometry.values, dtype=object))
+    if axial_resultant_length(az, seg_len) < 1e-9:
         raise AnalysisError("fault traces have no preferred strike; give the transect azimuth explicitly.")
-    return float(np.degrees(0.5 * np.arctan2(s, c)) % 180.0)
+    return float(axial_mean_deg(az, seg_len)[0])
 
 
 def auto_transects(

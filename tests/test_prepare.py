@@ -220,3 +220,18 @@ def test_custom_transverse_mercator_survives_exactly(tmp_path):
     assert back.crs.equals(custom)
     # lengths match the traces (shapely length in the same CRS)
     np.testing.assert_allclose(back["length_m"], shapely.length(np.array(lines)), rtol=1e-12)
+
+
+def test_one_axial_mean_everywhere():
+    # Doubled-angle axial mean (Mardia & Jupp 2000): every analysis that averages strikes uses the same
+    # implementation and agrees on a known case: two equal axes at 10 and 50 deg average to 30 deg;
+    # a north-south set gives 0, never 180 (the range is [0, 180)).
+    from faultmap.directions import axial_mean_deg as base
+    from faultmap.transect import mean_strike_deg
+    from faultmap.width import axial_mean_deg as width_mean
+
+    assert base([10.0, 230.0], [1.0, 1.0])[0] == pytest.approx(30.0)
+    assert width_mean(np.array([10.0, 230.0]), np.array([1.0, 1.0])) == pytest.approx(30.0)
+    assert width_mean(np.array([0.0, 180.0, 0.0]), None) == 0.0
+    g = _gdf([shapely.LineString([(0, 0), (0, 1000)]), shapely.LineString([(50, 1000), (50, 0)])])
+    assert mean_strike_deg(g) == 0.0
