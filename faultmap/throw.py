@@ -251,6 +251,8 @@ class ThrowResult:
         The parameters used (adapted values filled in).
     n_samples : int
         Profile samples taken (for throughput figures).
+    n_batches : int
+        Spatial batches the work was split into.
     """
 
     faults: gpd.GeoDataFrame
@@ -259,6 +261,7 @@ class ThrowResult:
     warnings: list
     params: ThrowParams
     n_samples: int = 0
+    n_batches: int = 0
 
 
 STATION_COLUMNS = (
@@ -522,5 +525,6 @@ def measure_throw(
     st["profile_half_length_m"] = st["half_length_m"]
     stations = gpd.GeoDataFrame(st[list(STATION_COLUMNS)].copy(), geometry=geom, crs=f.crs)
     return ThrowResult(
-        faults=f, stations=stations, linkage_zones=lz, warnings=warns, params=params, n_samples=n_samples
+        faults=f, stations=stations, linkage_zones=lz, warnings=warns, params=params, n_samples=n_samples,
+        n_batches=len(batches),
     )

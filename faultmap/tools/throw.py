@@ -18,7 +18,7 @@ _FIGURES = ("throw_map.png", "throw_profiles.png", "throw_systems.png")
 
 def run(ctx, p: dict) -> None:
     """Measure throw along the prepared traces and store the layers."""
-    from faultmap.throw import measure_throw, plan_batches, resolve_params
+    from faultmap.throw import measure_throw, resolve_params
 
     faults = ctx.faults
     if faults is None:
@@ -46,7 +46,6 @@ def run(ctx, p: dict) -> None:
     engine = ctx.engine
     parallel = getattr(engine, "parallelism", 1) if engine is not None else 1
     min_batches = 4 * parallel if parallel > 1 else 1
-    n_batches = len(plan_batches(faults, dem, params, min_batches=min_batches))
 
     def progress(iterable, total):
         return ctx.progress(iterable, total=total, desc="throw")
@@ -99,7 +98,7 @@ def run(ctx, p: dict) -> None:
             + ", ".join(f"{k:g}: {int(v)} faults" for k, v in used.value_counts().sort_index().items()),
         )
     ctx.record("sample_step_m", f"{params.sample_step_m:g}")
-    ctx.record("n_batches", n_batches)
+    ctx.record("n_batches", res.n_batches)
     ctx.record("n_profile_samples", res.n_samples)
     counts = res.stations["status"].value_counts()
     ctx.record("station_status", ", ".join(f"{k} {int(v)}" for k, v in counts.items()))
