@@ -60,6 +60,8 @@ def _input_options() -> list[click.Option]:
         click.Option(["--overwrite"], is_flag=True, help="Replace an existing output."),
         click.Option(["--workers"], type=int, help="Run on a local Dask cluster with N workers (faultmap[dask])."),
         click.Option(["--scheduler"], help="Run on an existing Dask scheduler at ADDRESS (faultmap[dask])."),
+        click.Option(["-v", "--verbose", "verbose_"], is_flag=True, help="Show tracebacks for errors."),
+        click.Option(["-q", "--quiet", "quiet_"], is_flag=True, help="No progress bars or notices."),
     ]
 
 
@@ -108,6 +110,10 @@ def tool_command(tool: Tool | BrokenTool, state: _State) -> click.Command:
     def callback(**kw):
         from faultmap.engine import make_engine
         from faultmap.runner import run_tools
+
+        # -v / -q are accepted before or after the tool name
+        state.verbose = state.verbose or kw.pop("verbose_")
+        state.quiet = state.quiet or kw.pop("quiet_")
 
         engine = None
         try:

@@ -175,3 +175,11 @@ def test_python_dash_m(scene):
 
     r = subprocess.run([sys.executable, "-m", "faultmap", "tools"], capture_output=True, text=True, check=True)
     assert "prepare" in r.stdout
+
+
+def test_quiet_and_verbose_after_the_tool_name(cli, scene):
+    out = scene["dir"] / "q.gpkg"
+    res = cli(["prepare", "--faults", scene["faults"], "--dem", scene["dem"], "--out", out, "-q"])
+    assert res.exit_code == 0 and "wrote" not in res.stderr and out.exists()
+    res = cli(["prepare", "--faults", scene["dir"] / "nope.gpkg", "--out", scene["dir"] / "n.gpkg", "-v"])
+    assert res.exit_code == 2 and "Traceback" in res.stderr
