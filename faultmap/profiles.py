@@ -15,6 +15,7 @@ import math
 
 import numpy as np
 
+from faultmap import kernels
 from faultmap.scarp_fit import fit_profile_matrix
 from faultmap.stations import StationSet
 
@@ -59,7 +60,7 @@ def chunk_samples(memory_budget_mb: float) -> int:
 
 
 def sample_profiles(
-    arr, transform, x, y, nx, ny, K: int, step: float, *, k_row=None, origin_xy=None
+    arr, transform, x, y, nx, ny, K: int, step: float, *, k_row=None, origin_xy=None, use_jit: bool = True
 ) -> np.ndarray:
     """Bilinear samples of the DEM along both sides of many profiles.
 
@@ -85,6 +86,10 @@ def sample_profiles(
         fractional pixel positions are taken relative to it, so a sample's
         value does not depend on which window holds it. Default: the
         window's own pixels.
+    use_jit : bool
+        Use the compiled kernel :func:`faultmap.kernels.bilinear_profiles`
+        when numba is available (the same numbers as the array code below,
+        which stays as the reference).
 
     Returns
     -------
@@ -130,6 +135,21 @@ def sample_profiles(
     drow = (np.concatenate([-ny, ny]) * (step * inv_e)).astype(_F32)
     i0 = np.floor(r0)
     j0 = np.floor(c0)
+    if use_jit and kernels.ENABLED:
+        kr = np.full(2 * m, K, dtype=np.int64) if k_row is None else np.concatenate([k_row, k_row])
+        return kernels.bilinear_profiles(
+            np.ascontiguousarray(arr).reshape(-1),
+            nr,
+            nc,
+            (r0 - i0).astype(_F32),
+            (c0 - j0).astype(_F32),
+            np.clip(i0 - wr, -(2**30), 2**30).astype(np.int64),
+            np.clip(j0 - wc, -(2**30), 2**30).astype(np.int64),
+            drow,
+            dcol,
+            K,
+            np.minimum(kr, K).astype(np.int64),
+        )
     k = np.arange(1, K + 1, dtype=_F32)
     # fractional coordinates relative to each station's pixel, float32
     fr = np.multiply.outer(drow, k)

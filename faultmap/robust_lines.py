@@ -16,6 +16,8 @@ import math
 
 import numpy as np
 
+from faultmap import kernels
+
 __all__ = ["CONVERGENCE_TOL", "MAX_ITERATIONS", "robust_line_fits"]
 
 _F32 = np.float32
@@ -446,19 +448,40 @@ def _length_groups(L):
     return groups
 
 
-def _fit_windows(Z0, valid, rows, lo, hi, *, init=None, **kw):
+def _fit_windows(Z0, valid, rows, lo, hi, *, init=None, use_jit=True, **kw):
     """Robust lines of the samples ``lo <= d <= hi`` (steps, d = column + 1) of some rows.
 
     Each row's window is copied into one column of a compact (w, lines)
     matrix (local abscissa from the window's start; the result is converted
     back), rows of similar window length together, so no pass touches
-    samples outside the windows.
+    samples outside the windows. With ``use_jit`` (default) and numba
+    available, the compiled per-row kernel
+    :func:`faultmap.kernels.robust_windows` does the same arithmetic
+    instead.
     """
     K = Z0.shape[1]
     s = np.clip(np.ceil(lo) - 1, 0, K).astype(np.int64)  # first column with d >= lo
     e = np.clip(np.floor(hi) - 1, -1, K - 1).astype(np.int64)  # last column with d <= hi
     L = np.maximum(e - s + 1, 0)
     nr = rows.size
+    if use_jit and kernels.ENABLED:
+        mi = kw.get("max_iterations")
+        cap = max(int(kw["iterations"]), int(MAX_ITERATIONS if mi is None else mi))
+        return kernels.robust_windows(
+            np.ascontiguousarray(Z0, dtype=_F32),
+            np.ascontiguousarray(valid, dtype=bool),
+            rows,
+            s,
+            L,
+            init=init,
+            loss=kw["loss"],
+            tuning=kw["tuning"],
+            iterations=kw["iterations"],
+            max_iterations=cap,
+            tol=kw.get("tol", CONVERGENCE_TOL),
+            autocorr=kw.get("autocorr", True),
+            scale_floor=kw.get("scale_floor", 1e-3),
+        )
     out = None
     flatZ = Z0.reshape(-1)
     flatV = valid.reshape(-1)

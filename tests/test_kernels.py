@@ -1,0 +1,122 @@
+"""The compiled kernels give the same numbers as the array code they replace.
+
+The array code (faultmap.profiles.sample_profiles and
+faultmap.robust_lines._fit_windows with ``use_jit=False``) is itself checked
+against outside references in test_throw.py: scipy.ndimage.map_coordinates
+for the bilinear samples, the M-estimate fixed point (Holland & Welsch 1977)
+for the robust lines. Here the kernels must reproduce it bit for bit
+(the same float32 operations in the same order), including voids, window
+edges, short and empty windows, warm starts and every loss.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from rasterio.transform import from_origin
+
+from faultmap import kernels
+from faultmap.profiles import sample_profiles
+from faultmap.robust_lines import _fit_windows
+
+pytestmark = pytest.mark.skipif(not kernels.ENABLED, reason="numba kernels disabled (FAULTMAP_NO_JIT)")
+
+
+def _same(a, b):
+    a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+    return a.shape == b.shape and bool(((a == b) | (np.isnan(a) & np.isnan(b))).all())
+
+
+@pytest.mark.parametrize("origin", [None, "pixel", "off-pixel"])
+def test_bilinear_kernel_matches_array_code(origin):
+    rng = np.random.default_rng(4)
+    nr, nc, px = 90, 130, 2.0
+    arr = (300.0 + np.cumsum(rng.normal(0.0, 0.5, (nr, nc)), axis=1)).astype("float32")
+    arr[rng.random(arr.shape) < 0.02] = np.nan
+    t = from_origin(1000.0, 5000.0, px, px)
+    m, K, step = 3000, 45, 1.7
+    x = rng.uniform(990.0, 1000.0 + nc * px + 10.0, m)
+    y = rng.uniform(5000.0 - nr * px - 10.0, 5010.0, m)
+    az = rng.uniform(0.0, 2.0 * math.pi, m)
+    nx, ny = np.sin(az), np.cos(az)
+    # profiles along the last row and column of pixel centres, and axis-parallel ones
+    x[:20] = 1000.0 + (nc - 0.5) * px
+    y[20:40] = 5000.0 - (nr - 0.5) * px
+    nx[:40:2], ny[:40:2] = 0.0, 1.0
+    nx[1:40:2], ny[1:40:2] = 1.0, 0.0
+    k_row = rng.integers(0, K + 1, m)
+    kw = {}
+    if origin == "pixel":
+        kw["origin_xy"] = (1000.0 - 7 * px + 0.5 * px, 5000.0 + 3 * px - 0.5 * px)
+    elif origin == "off-pixel":
+        kw["origin_xy"] = (1000.3, 5000.1)
+    for kr in (None, k_row):
+        ref = sample_profiles(arr, t, x, y, nx, ny, K, step, k_row=kr, use_jit=False, **kw)
+        got = sample_profiles(arr, t, x, y, nx, ny, K, step, k_row=kr, use_jit=True, **kw)
+        assert _same(got, ref)
+        # the case mix is real: voids, outside samples and finite values all occur
+        assert np.isnan(ref).any() and np.isfinite(ref).mean() > 0.3
+
+
+def _windows(seed, R2=1500, K=70):
+    rng = np.random.default_rng(seed)
+    d = np.arange(1, K + 1)
+    Z = 5.0 * rng.normal(size=(R2, 1)) + 0.05 * rng.normal(size=(R2, 1)) * d + rng.normal(0.0, 0.3, (R2, K))
+    out = rng.random(Z.shape) < 0.08  # gullies, vegetation
+    Z[out] += rng.choice([-6.0, 6.0], size=int(out.sum()))
+    Z[: R2 // 20] = 1.25  # noise-free rows: the scale floor
+    Z = Z.astype("float32")
+    valid = rng.random(Z.shape) > 0.06
+    valid[R2 // 20 : R2 // 10] = False  # empty rows
+    Z0 = np.where(valid, Z, 0.0).astype("float32")
+    lo = rng.uniform(0.5, 25.0, R2)
+    hi = lo + rng.uniform(-3.0, 50.0, R2)  # some windows empty or of one sample
+    rows = rng.permutation(R2)[: R2 - 7]
+    init_a = rng.normal(0.0, 2.0, R2)
+    init_b = rng.normal(0.0, 0.05, R2)
+    init_a[::9] = np.nan
+    return Z0, valid, rows, lo[rows], hi[rows], (init_a[rows], init_b[rows])
+
+
+@pytest.mark.parametrize(
+    "loss,iterations,max_iterations,autocorr,warm",
+    [
+        ("tukey", 3, None, True, False),
+        ("tukey", 3, None, True, True),
+        ("tukey", 1, 1, False, False),
+        ("huber", 2, None, True, True),
+        ("none", 3, None, True, False),
+        ("none", 0, None, True, True),
+        ("tukey", 6, 4, True, False),
+    ],
+)
+def test_robust_window_kernel_matches_array_code(loss, iterations, max_iterations, autocorr, warm):
+    Z0, valid, rows, lo, hi, init = _windows(7)
+    kw = dict(
+        loss=loss,
+        tuning=4.685 if loss == "tukey" else 1.345,
+        iterations=iterations,
+        max_iterations=max_iterations,
+        autocorr=autocorr,
+        init=init if warm else None,
+    )
+    ref = _fit_windows(Z0, valid, rows, lo, hi, use_jit=False, **kw)
+    got = _fit_windows(Z0, valid, rows, lo, hi, use_jit=True, **kw)
+    assert set(got) == set(ref)
+    for k in ref:
+        assert _same(got[k], ref[k]), k
+    assert got["n"].dtype == ref["n"].dtype
+    # fits that failed (empty or one-sample windows) and fits that worked are both in the mix
+    assert np.isnan(ref["a"]).any() and np.isfinite(ref["a"]).mean() > 0.5
+
+
+def test_selection_is_the_lower_median():
+    # reference: numpy's sort; the k-th smallest of a buffer, ties and repeated values included
+    rng = np.random.default_rng(1)
+    for n in (1, 2, 3, 10, 31, 64):
+        for _ in range(20):
+            x = rng.integers(0, 6, n).astype("float32") if n > 3 else rng.normal(size=n).astype("float32")
+            k = (n - 1) // 2
+            assert kernels._select(x.copy(), n, k) == np.sort(x)[k]
