@@ -200,64 +200,32 @@ def _finish(W, z, d, L, a, b, autocorr):  # pragma: no cover
     return np.float64(ssr), np.float64(lag), np.float64(wlag)
 
 
-@_jit
-def _select(x, n, k):  # pragma: no cover
-    """The k-th smallest of x[:n] (0-based; x is reordered): Wirth's selection (1976)."""
-    lo = 0
-    hi = n - 1
-    while lo < hi:
-        pivot = x[k]
-        i = lo
-        j = hi
-        while True:
-            while x[i] < pivot:
-                i += 1
-            while pivot < x[j]:
-                j -= 1
-            if i <= j:
-                t = x[i]
-                x[i] = x[j]
-                x[j] = t
-                i += 1
-                j -= 1
-            if i > j:
-                break
-        if j < k:
-            lo = i
-        if k < i:
-            hi = j
-    return x[k]
+# Per-row state of the robust fits (columns of a float64 array)
+_A, _B, _SC, _INV, _BASE_A, _BASE_B, _N, _SW, _SD, _SDD, _SZ, _SDZ, _M1, _M2, _CNT = range(15)
+_NSTATE = 15
 
 
 @_jit
-def _robust_rows(
-    Z0, valid, rows, s, L, init_a, init_b, has_init, loss, tuning, n_it, cap, tol, autocorr, scale_floor, out
-):  # pragma: no cover
+def _load(Z0, valid, rows, s, L, init_a, init_b, has_init, Zg, Mg, st):  # pragma: no cover
+    """Copy each row's window into a compact matrix (warm start applied) and fit it by least squares."""
     K = Z0.shape[1]
-    wmax = 2
-    for i in range(rows.size):
-        wmax = max(wmax, L[i])
-    z = np.empty(wmax, dtype=np.float32)
-    mf = np.empty(wmax, dtype=np.float32)
-    W = np.empty(wmax, dtype=np.float32)
-    buf = np.empty(wmax, dtype=np.float32)
-    d = np.arange(1, wmax + 1).astype(np.float32)
+    w = Zg.shape[1]
+    d = np.arange(1, w + 1).astype(np.float32)
     one = np.float32(1.0)
     zero = np.float32(0.0)
     for i in range(rows.size):
         r = rows[i]
         s0 = s[i]
         Li = L[i]
-        off = float(s0)
-        span = float(max(Li, 1))
-        for j in range(Li):
-            c = min(s0 + j, K - 1)
-            if valid[r, c]:
-                z[j] = Z0[r, c]
-                mf[j] = one
+        cnt = 0
+        for j in range(w):
+            if j < Li and valid[r, min(s0 + j, K - 1)]:
+                Zg[i, j] = Z0[r, min(s0 + j, K - 1)]
+                Mg[i, j] = one
+                cnt += 1
             else:
-                z[j] = zero
-                mf[j] = zero
+                Zg[i, j] = zero
+                Mg[i, j] = zero
         base_a = 0.0
         base_b = 0.0
         good = False
@@ -266,73 +234,154 @@ def _robust_rows(
             b0 = init_b[i]
             good = np.isfinite(a0) and np.isfinite(b0)
             if good:
-                base_a = a0 + b0 * off
+                base_a = a0 + b0 * float(s0)
                 base_b = b0
                 af = _f32_finite(base_a)
                 bf = _f32_finite(base_b)
                 for j in range(Li):
-                    z[j] = (z[j] - (d[j] * bf + af)) * mf[j]
-        sw, sd, sdd, sz, sdz = _sums(mf, z, d, Li)
-        n_samp = np.rint(sw)
+                    Zg[i, j] = (Zg[i, j] - (d[j] * bf + af)) * Mg[i, j]
+        sw, sd, sdd, sz, sdz = _sums(Mg[i], Zg[i], d, Li)
         a, b = _solve(sw, sd, sdd, sz, sdz)
         if good:
             a = 0.0
             b = 0.0
+        st[i, _A] = a
+        st[i, _B] = b
+        st[i, _SC] = np.nan
+        st[i, _BASE_A] = base_a
+        st[i, _BASE_B] = base_b
+        st[i, _N] = np.rint(sw)
+        st[i, _SW] = sw
+        st[i, _SD] = sd
+        st[i, _SDD] = sdd
+        st[i, _SZ] = sz
+        st[i, _SDZ] = sdz
+        st[i, _CNT] = cnt
+
+
+@_jit
+def _abs_residuals(Zg, Mg, L, st, A):  # pragma: no cover
+    """|residual| about the current lines; +inf where no sample (so a row sort puts them last)."""
+    w = Zg.shape[1]
+    d = np.arange(1, w + 1).astype(np.float32)
+    inf = np.float32(np.inf)
+    zero = np.float32(0.0)
+    for i in range(Zg.shape[0]):
+        af = _f32_finite(st[i, _A])
+        bf = _f32_finite(st[i, _B])
+        for j in range(w):
+            if j < L[i] and Mg[i, j] != zero:
+                A[i, j] = abs(Zg[i, j] - (d[j] * bf + af))
+            else:
+                A[i, j] = inf
+
+
+@_jit
+def _reweight(z, m, d, Li, af, bf, inv, loss, W):  # pragma: no cover
+    """Weights of one row's samples about its line (Tukey or Huber), and their normal-equation sums."""
+    one = np.float32(1.0)
+    zero = np.float32(0.0)
+    s0 = zero
+    s1 = zero
+    s2 = zero
+    s3 = zero
+    s4 = zero
+    for j in range(Li):
+        u = (z[j] - (d[j] * bf + af)) * inv
+        if loss == 1:
+            u = u * u
+            u = one - u
+            u = max(u, zero)
+            u = u * u
+        else:
+            u = abs(u)
+            u = max(u, one)
+            u = one / u
+        wj = u * m[j]
+        W[j] = wj
+        t = wj * d[j]
+        s0 += wj
+        s1 += t
+        s2 += t * d[j]
+        t = wj * z[j]
+        s3 += t
+        s4 += t * d[j]
+    return np.float64(s0), np.float64(s1), np.float64(s2), np.float64(s3), np.float64(s4)
+
+
+@_jit
+def _step(Zg, Mg, L, st, sc_row, inv_row, loss, Wg):  # pragma: no cover
+    """One reweighting pass of every row at the given scale; the new lines and how far they moved."""
+    w = Zg.shape[1]
+    d = np.arange(1, w + 1).astype(np.float32)
+    for i in range(Zg.shape[0]):
+        a = st[i, _A]
+        b = st[i, _B]
+        sw, sd, sdd, sz, sdz = _reweight(
+            Zg[i], Mg[i], d, L[i], _f32_finite(a), _f32_finite(b), inv_row[i], loss, Wg[i]
+        )
+        a_new, b_new = _solve(sw, sd, sdd, sz, sdz)
+        da = a_new - a
+        db = b_new - b
+        st[i, _M1] = abs(da + db * 1.0)
+        st[i, _M2] = abs(da + db * float(max(L[i], 1)))
+        if np.isfinite(a_new):
+            st[i, _A] = a_new
+            st[i, _B] = b_new
+        st[i, _SC] = sc_row[i]
+        st[i, _INV] = inv_row[i]
+        st[i, _SW] = sw
+        st[i, _SD] = sd
+        st[i, _SDD] = sdd
+        st[i, _SZ] = sz
+        st[i, _SDZ] = sdz
+
+
+@_jit
+def _converge_and_finish(Zg, Mg, L, st, s, has_init, loss, n_it, cap, tol, autocorr, scale_floor, Wg, out, sel):  # pragma: no cover
+    """Go on reweighting each row at its held scale until its line stops moving; then its statistics."""
+    w = Zg.shape[1]
+    d = np.arange(1, w + 1).astype(np.float32)
+    for i in range(Zg.shape[0]):
+        Li = L[i]
+        a = st[i, _A]
+        b = st[i, _B]
+        sw = st[i, _SW]
+        sd = st[i, _SD]
+        sdd = st[i, _SDD]
+        sz = st[i, _SZ]
+        sdz = st[i, _SDZ]
         if loss == 0 or n_it <= 0:
             if has_init:
                 a, b = _solve(sw, sd, sdd, sz, sdz)
-            ssr, lag, wlag = _finish(mf, z, d, Li, a, b, autocorr)
-            scale = np.nan  # set from the rms below
+            ssr, lag, wlag = _finish(Mg[i], Zg[i], d, Li, a, b, autocorr)
+            scale = np.nan  # from the rms below
         else:
-            sc = 0.0
-            inv = np.float32(0.0)
-            it = 0
+            sc = st[i, _SC]
+            inv = np.float32(st[i, _INV])
+            m1 = st[i, _M1]
+            m2 = st[i, _M2]
+            it = n_it
             while True:
-                af = _f32_finite(a)
-                bf = _f32_finite(b)
-                if it < n_it:
-                    # lower median of |residual| over the valid samples
-                    cnt = 0
-                    for j in range(Li):
-                        if mf[j] != zero:
-                            buf[cnt] = abs(z[j] - (d[j] * bf + af))
-                            cnt += 1
-                    med = 0.0
-                    if cnt > 0:
-                        med = np.float64(_select(buf, cnt, (cnt - 1) // 2))
-                    sc = max(1.4826 * med, scale_floor)
-                    inv = np.float32(1.0 / (tuning * sc))
-                for j in range(Li):
-                    u = (z[j] - (d[j] * bf + af)) * inv
-                    if loss == 1:
-                        u = u * u
-                        u = one - u
-                        u = max(u, zero)
-                        u = u * u
-                    else:
-                        u = abs(u)
-                        u = max(u, one)
-                        u = one / u
-                    W[j] = u * mf[j]
-                sw, sd, sdd, sz, sdz = _sums(W, z, d, Li)
+                # NaN movement: nothing to gain
+                moving = (m1 == m1) and (m2 == m2) and max(m1, m2) >= tol * sc
+                if not (it < cap and moving):
+                    break
+                sw, sd, sdd, sz, sdz = _reweight(
+                    Zg[i], Mg[i], d, Li, _f32_finite(a), _f32_finite(b), inv, loss, Wg[i]
+                )
                 a_new, b_new = _solve(sw, sd, sdd, sz, sdz)
                 da = a_new - a
                 db = b_new - b
                 m1 = abs(da + db * 1.0)
-                m2 = abs(da + db * span)
+                m2 = abs(da + db * float(max(Li, 1)))
                 if np.isfinite(a_new):
                     a = a_new
                     b = b_new
                 it += 1
-                if it < n_it:
-                    continue
-                thr = tol * sc
-                moving = (m1 == m1) and (m2 == m2) and max(m1, m2) >= thr
-                if it < cap and moving:
-                    continue
-                ssr, lag, wlag = _finish(W, z, d, Li, a, b, autocorr)
-                scale = sc
-                break
+            ssr, lag, wlag = _finish(Wg[i], Zg[i], d, Li, a, b, autocorr)
+            scale = sc
+        # statistics of the line (local abscissa), as faultmap.robust_lines._line_stats
         det = sw * sdd - sd * sd
         rms = np.sqrt(ssr / sw)
         s2 = ssr / max(sw - 2.0, 1.0)
@@ -346,22 +395,48 @@ def _robust_rows(
         cov_ab = -s2 * sd / det * infl
         if scale != scale:
             scale = max(rms if np.isfinite(rms) else scale_floor, scale_floor)
-        b = b + base_b
-        a = a + base_a - b * off
+        # back to the absolute abscissa and the samples before the warm start
+        off = float(s[i])
+        b = b + st[i, _BASE_B]
+        a = a + st[i, _BASE_A] - b * off
         var_a = var_a - 2.0 * off * cov_ab + off * off * var_b
         cov_ab = cov_ab - off * var_b
         if not (sw > 1.5) or not (det > 0):
             a = b = var_a = var_b = cov_ab = rms = ssr = np.nan
-        out[0, i] = a
-        out[1, i] = b
-        out[2, i] = var_a
-        out[3, i] = var_b
-        out[4, i] = cov_ab
-        out[5, i] = scale
-        out[6, i] = rms
-        out[7, i] = n_samp
-        out[8, i] = sw
-        out[9, i] = ssr
+        k = sel[i]
+        out[0, k] = a
+        out[1, k] = b
+        out[2, k] = var_a
+        out[3, k] = var_b
+        out[4, k] = cov_ab
+        out[5, k] = scale
+        out[6, k] = rms
+        out[7, k] = st[i, _N]
+        out[8, k] = sw
+        out[9, k] = ssr
+
+
+#: Windows whose lengths differ by under this factor share one compact matrix.
+_GROWTH = 1.25
+#: Largest compact matrix, samples (bounded memory; the caller's matrices are already chunked).
+_GROUP_SAMPLES = 1 << 20
+
+
+def _groups(L):
+    """Rows in order of window length, cut into groups of similar length and bounded size."""
+    order = np.argsort(L, kind="stable")
+    Ls = L[order]
+    out = []
+    i, n = 0, Ls.size
+    while i < n:
+        w = max(int(Ls[i]), 2)
+        j = int(np.searchsorted(Ls, int(math.floor(w * _GROWTH)), side="right"))
+        wg = max(int(Ls[j - 1]), 2)
+        per = max(1, _GROUP_SAMPLES // wg)
+        for a in range(i, j, per):
+            out.append(order[a : min(j, a + per)])
+        i = j
+    return out
 
 
 def robust_windows(
@@ -372,7 +447,10 @@ def robust_windows(
     The per-row form of :func:`faultmap.robust_lines._irls` on the windows
     of :func:`faultmap.robust_lines._fit_windows` (same arguments, same
     results); see :func:`faultmap.robust_lines.robust_line_fits` for the
-    method.
+    method. Windows are copied into compact matrices of similar lengths;
+    the passes that re-estimate the residual scale sort each matrix's
+    absolute residuals row by row with numpy (its vectorised sort is far
+    faster than any per-row selection), the rest runs row by row.
 
     Returns
     -------
@@ -380,31 +458,59 @@ def robust_windows(
         ``a``, ``b``, ``var_a``, ``var_b``, ``cov_ab``, ``scale``, ``rms``,
         ``n`` (int64), ``inliers``, ``ssr``.
     """
+    rows = np.ascontiguousarray(rows, dtype=np.int64)
+    s = np.ascontiguousarray(s, dtype=np.int64)
+    L = np.ascontiguousarray(L, dtype=np.int64)
     nr = rows.size
-    if init is None:
-        ia = ib = np.zeros(nr)
-    else:
+    has_init = init is not None
+    if has_init:
         ia = np.ascontiguousarray(init[0], dtype=float)
         ib = np.ascontiguousarray(init[1], dtype=float)
+    else:
+        ia = ib = np.zeros(nr)
+    code = LOSS_CODES[loss]
+    n_it = int(iterations)
     out = np.empty((10, nr))
-    _robust_rows(
-        Z0,
-        valid,
-        np.ascontiguousarray(rows, dtype=np.int64),
-        np.ascontiguousarray(s, dtype=np.int64),
-        np.ascontiguousarray(L, dtype=np.int64),
-        ia,
-        ib,
-        init is not None,
-        LOSS_CODES[loss],
-        float(tuning),
-        int(iterations),
-        int(max_iterations),
-        float(tol),
-        bool(autocorr),
-        float(scale_floor),
-        out,
-    )
+    for sel in _groups(L):
+        g = sel.size
+        w = max(int(L[sel].max()), 2)
+        Zg = np.empty((g, w), dtype=_F32)
+        Mg = np.empty((g, w), dtype=_F32)
+        Wg = np.zeros((g, w), dtype=_F32)
+        st = np.empty((g, _NSTATE))
+        Lg = L[sel]
+        _load(Z0, valid, rows[sel], s[sel], Lg, ia[sel], ib[sel], has_init, Zg, Mg, st)
+        if code != 0 and n_it > 0:
+            A = np.empty((g, w), dtype=_F32)
+            cnt = st[:, _CNT].astype(np.int64)
+            rank = np.maximum((cnt - 1) // 2, 0)
+            ar = np.arange(g)
+            for _ in range(n_it):
+                # scale: normalised MAD about the current lines, re-estimated at each of these passes
+                _abs_residuals(Zg, Mg, Lg, st, A)
+                A.sort(axis=1)
+                med = A[ar, rank].astype(float)
+                med[cnt == 0] = 0.0
+                sc = np.maximum(1.4826 * med, float(scale_floor))
+                inv = (1.0 / (float(tuning) * sc)).astype(_F32)
+                _step(Zg, Mg, Lg, st, sc, inv, code, Wg)
+        _converge_and_finish(
+            Zg,
+            Mg,
+            Lg,
+            st,
+            s[sel],
+            has_init,
+            code,
+            n_it,
+            int(max_iterations),
+            float(tol),
+            bool(autocorr),
+            float(scale_floor),
+            Wg,
+            out,
+            sel,
+        )
     keys = ("a", "b", "var_a", "var_b", "cov_ab", "scale", "rms", "n", "inliers", "ssr")
     res = {k: out[j] for j, k in enumerate(keys)}
     res["n"] = res["n"].astype(np.int64)

@@ -111,12 +111,3 @@ def test_robust_window_kernel_matches_array_code(loss, iterations, max_iteration
     # fits that failed (empty or one-sample windows) and fits that worked are both in the mix
     assert np.isnan(ref["a"]).any() and np.isfinite(ref["a"]).mean() > 0.5
 
-
-def test_selection_is_the_lower_median():
-    # reference: numpy's sort; the k-th smallest of a buffer, ties and repeated values included
-    rng = np.random.default_rng(1)
-    for n in (1, 2, 3, 10, 31, 64):
-        for _ in range(20):
-            x = rng.integers(0, 6, n).astype("float32") if n > 3 else rng.normal(size=n).astype("float32")
-            k = (n - 1) // 2
-            assert kernels._select(x.copy(), n, k) == np.sort(x)[k]
