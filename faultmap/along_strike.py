@@ -249,15 +249,22 @@ _CV_SE = 0.0
 SMOOTHING_CANDIDATES = (0.6, 0.9, 1.3, 2.0, 3.0)
 
 
-def _smooth_profiles(group, T, se, sigma, *, chunk: int = 8192):
+def smooth_chunk_task(args):
+    """Run :func:`_smooth_chunk` on ``(group, T, se, sigma, floor)`` (what an engine maps over chunks)."""
+    group, T, se, sigma, floor = args
+    return _smooth_chunk(group, T, se, sigma, floor=floor)
+
+
+def _smooth_profiles(group, T, se, sigma, *, chunk: int = 8192, mapper=None):
     """Smooth the along-strike profiles in chunks of whole faults (bounded memory).
 
     See :func:`_smooth_chunk`; ``group`` must be sorted (stations of a fault
     contiguous), and each chunk holds whole faults, so the result does not
-    depend on the chunking.
+    depend on the chunking. ``mapper(func, items) -> list`` (in order) may
+    run the chunks in parallel (an engine's map); default a loop.
     """
     n = T.size
-    if n <= chunk:
+    if n <= chunk and mapper is None:
         return _smooth_chunk(group, T, se, sigma)
     starts = np.flatnonzero(np.r_[True, group[1:] != group[:-1]])
     cuts = [0]
@@ -268,10 +275,8 @@ def _smooth_profiles(group, T, se, sigma, *, chunk: int = 8192):
     # the error floor of the whole set, as an unchunked run would use
     fin = np.isfinite(se) & (se > 0)
     floor = float(np.median(se[fin])) * 0.1 if fin.any() else 1e-3
-    parts = [
-        _smooth_chunk(group[a:b], T[a:b], se[a:b], sigma, floor=floor)
-        for a, b in zip(cuts[:-1], cuts[1:], strict=True)
-    ]
+    items = [(group[a:b], T[a:b], se[a:b], sigma, floor) for a, b in zip(cuts[:-1], cuts[1:], strict=True)]
+    parts = [smooth_chunk_task(it) for it in items] if mapper is None else mapper(smooth_chunk_task, items)
     out = [np.concatenate([p[k] for p in parts]) for k in range(4)]
     return (*out, np.concatenate([p[4] for p in parts], axis=0))
 
@@ -437,7 +442,12 @@ def _grouped_trapz(group, d, v, L, n_groups):
 
 
 def summarise_faults(
-    faults: gpd.GeoDataFrame, stations: pd.DataFrame, *, smooth_stations: float | None = None
+    faults: gpd.GeoDataFrame,
+    stations: pd.DataFrame,
+    *,
+    smooth_stations: float | None = None,
+    mapper=None,
+    chunk_stations: int = 8192,
 ) -> tuple[gpd.GeoDataFrame, pd.DataFrame]:
     """Per-fault throw figures from the station throws.
 
@@ -450,6 +460,12 @@ def summarise_faults(
     smooth_stations : float, optional
         Gaussian kernel sigma in station spacings (0 = raw stations);
         default chosen per fault by cross-validation.
+    mapper : callable, optional
+        ``mapper(func, items) -> list`` running the smoothing of chunks of
+        whole faults, in order, possibly in parallel (an engine's map).
+        Results do not depend on it.
+    chunk_stations : int
+        Stations per smoothing chunk (whole faults; bounded memory).
 
     Returns
     -------
@@ -494,6 +510,8 @@ def summarise_faults(
         np.where(ok, T, np.nan),
         np.where(ok, se, np.nan),
         None if smooth_stations is None else float(smooth_stations),
+        chunk=int(chunk_stations),
+        mapper=mapper,
     )
     st["throw_smooth_m"] = Ts
     st["throw_smooth_err_m"] = se_s

@@ -60,6 +60,11 @@ def _input_options() -> list[click.Option]:
         click.Option(["--overwrite"], is_flag=True, help="Replace an existing output."),
         click.Option(["--workers"], type=int, help="Run on a local Dask cluster with N workers (faultmap[dask])."),
         click.Option(["--scheduler"], help="Run on an existing Dask scheduler at ADDRESS (faultmap[dask])."),
+        click.Option(
+            ["--threads"],
+            type=int,
+            help="In-process threads (default: one per core, at most 4; 1 = sequential).",
+        ),
         click.Option(["-v", "--verbose", "verbose_"], is_flag=True, help="Show tracebacks for errors."),
         click.Option(["-q", "--quiet", "quiet_"], is_flag=True, help="No progress bars or notices."),
     ]
@@ -124,8 +129,8 @@ def tool_command(tool: Tool | BrokenTool, state: _State) -> click.Command:
                           "transects_layer", "study_area", "study_area_layer", "crs")
                 if kw.get(k) is not None
             }
-            if kw["workers"] is not None or kw["scheduler"] is not None:
-                engine = make_engine(workers=kw["workers"], scheduler=kw["scheduler"])
+            if kw["workers"] is not None or kw["scheduler"] is not None or kw["threads"] is not None:
+                engine = make_engine(workers=kw["workers"], scheduler=kw["scheduler"], threads=kw["threads"])
             res = run_tools(
                 [tool.name],
                 inputs=inputs,

@@ -6,8 +6,10 @@ whatever runs them. Only the client (this process) writes outputs.
 
 Three kinds of engine:
 
-* ``in-process`` (default): a plain loop, or a small thread pool
-  (``threads``); needs nothing beyond faultmap's own dependencies.
+* ``in-process`` (default): a small thread pool (``threads``; by default
+  one thread per core, at most 4, see :func:`default_threads`; 1 = a plain
+  loop); needs nothing beyond faultmap's own dependencies. The throw
+  step's compiled kernels release the GIL, so its batches run in parallel.
 * ``local-cluster`` (``workers=N``): starts a Dask ``LocalCluster`` of N
   single-threaded worker processes on this machine for the run.
 * ``scheduler`` (``scheduler="tcp://host:8786"``): connects to an existing
@@ -26,10 +28,23 @@ from typing import Any
 
 from faultmap.errors import FaultmapError, NotAvailableError, ParameterError
 
-__all__ = ["Engine", "make_engine", "engine_map", "run_capturing_warnings", "DASK_HINT"]
+__all__ = ["Engine", "make_engine", "engine_map", "run_capturing_warnings", "default_threads", "DASK_HINT"]
 
 #: How to get the optional Dask dependencies.
 DASK_HINT = "pip install 'faultmap[dask]'"
+#: Most in-process threads used unless asked for (more mostly multiply the memory in use).
+MAX_DEFAULT_THREADS = 4
+
+
+def default_threads() -> int:
+    """In-process threads when none are asked for: the cores this process may use, at most 4."""
+    import os
+
+    try:
+        n = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):  # pragma: no cover - not Linux
+        n = os.cpu_count() or 1
+    return max(1, min(int(n), MAX_DEFAULT_THREADS))
 
 
 def run_capturing_warnings(func: Callable[[Any], Any], batch: Any) -> tuple[Any, list]:
@@ -67,8 +82,9 @@ class Engine:
     scheduler : str, optional
         Address of an existing Dask scheduler (``tcp://host:8786``).
     threads : int, optional
-        In-process thread pool size (default 1: sequential). Ignored by the
-        Dask engines (their workers decide).
+        In-process thread pool size (default :func:`default_threads`: one
+        per core, at most 4; 1 = sequential). Ignored by the Dask engines
+        (their workers decide).
     timeout_s : float
         How long to wait for an existing scheduler to answer, s.
 
@@ -101,7 +117,7 @@ class Engine:
             raise ParameterError(f"scheduler must be an address such as tcp://host:8786, got {scheduler!r}.")
         self.workers = None if workers is None else int(workers)
         self.scheduler = scheduler
-        self.threads = int(threads or 1)
+        self.threads = default_threads() if threads is None else int(threads)
         self._client = None
         self._cluster = None
         if workers is not None or scheduler is not None:

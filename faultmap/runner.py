@@ -243,7 +243,7 @@ def _run_info(ctx: RunContext, order: list[str], params: dict, inputs: dict, out
         ("run_utc", datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")),
         ("tools", ",".join(order)),
         ("output", str(out)),
-        ("engine", ctx.engine.describe() if ctx.engine is not None else "in-process, 1 thread"),
+        ("engine", ctx.engine.describe() if ctx.engine is not None else "in-process, 1 thread(s)"),
         ("working_crs_name", ctx.crs.name if ctx.crs is not None else ""),
         ("working_crs_wkt", ctx.crs.to_wkt() if ctx.crs is not None else ""),
     ]
@@ -318,6 +318,10 @@ def run_tools(
     params = {k: dict(v or {}) for k, v in (params or {}).items()}
     inputs = _check_inputs(dict(inputs))
     out = check_target(out, overwrite=overwrite)
+    if engine is None:
+        from faultmap.engine import Engine
+
+        engine = Engine()  # in-process, one thread per core: nothing to close
     ctx = RunContext(quiet=quiet, fields=dict(fields or {}), inputs=inputs, engine=engine)
     if echo is not None:
         ctx.echo = echo

@@ -512,7 +512,18 @@ def measure_throw(
         f.loc[unk & ~upd, "dip_dir_source"] = "unknown"
     f["dip_dir_confidence"] = conf.reindex(fid).to_numpy(dtype=float)
     # --- summaries
-    f, st = summarise_faults(f, st, smooth_stations=params.smooth_stations)
+    if mapper is None:
+        f, st = summarise_faults(f, st, smooth_stations=params.smooth_stations)
+    else:
+        # chunks of whole faults, about two per batch of the step, through the same engine
+        n_chunks = max(2, len(batches))
+        f, st = summarise_faults(
+            f,
+            st,
+            smooth_stations=params.smooth_stations,
+            mapper=lambda fn, items: mapper(fn, items, None),
+            chunk_stations=max(1024, -(-len(st) // n_chunks)),
+        )
     if "censored" not in f.columns:
         f["censored"] = False
     f["censored"] = f["censored"].astype(bool)

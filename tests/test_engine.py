@@ -47,8 +47,12 @@ def test_bad_engine_options():
         make_engine(threads=1.5)
     with pytest.raises(ParameterError, match="not both"):
         make_engine(workers=2, scheduler="tcp://127.0.0.1:1")
-    assert make_engine().kind == "in-process" and make_engine().parallelism == 1
+    assert make_engine().kind == "in-process" and make_engine(threads=1).parallelism == 1
     assert make_engine(threads=3).parallelism == 3
+    # default: one thread per core this process may use (os.sched_getaffinity), at most 4
+    import os
+
+    assert make_engine().parallelism == min(len(os.sched_getaffinity(0)), 4)
 
 
 def test_threads_failure_raises_the_batch_error():

@@ -202,7 +202,7 @@ def test_transect_batches_are_independent_of_batch_size(ostrel):
 def test_throw_is_independent_of_the_batch_plan(ostrel, tmp_path):
     scene, ref = ostrel
     params = {"throw": {"memory_budget_mb": 512.0}}
-    res = _run(scene.inputs(), tmp_path / "big.gpkg", tools=("throw",), params=params)
+    res = _run(scene.inputs(), tmp_path / "big.gpkg", tools=("throw",), params=params, engine=make_engine(threads=1))
     got = read_layers(res.gpkg)
     assert int(_info(got)["throw.n_batches"]) == 1 < int(_info(ref)["throw.n_batches"])
     for name in ("faults", "throw_stations", "linkage_zones"):
