@@ -8,6 +8,9 @@ cannot be imported or ``FAULTMAP_NO_JIT=1`` is set):
   profiles: :func:`faultmap.profiles.sample_profiles`.
 * :func:`robust_windows` fits robust lines to a window of samples of many
   profile rows: :func:`faultmap.robust_lines._fit_windows`.
+* :func:`box_pairs` finds the profiles and trace segments whose boxes
+  overlap: a ``shapely.STRtree`` query in
+  :func:`faultmap.stations.crossing_limits`.
 
 Both repeat the reference's float32 arithmetic operation by operation and
 accumulate every sum sample by sample in the same order, so they return
@@ -28,7 +31,7 @@ import os
 
 import numpy as np
 
-__all__ = ["ENABLED", "bilinear_profiles", "robust_windows"]
+__all__ = ["ENABLED", "bilinear_profiles", "robust_windows", "box_pairs"]
 
 try:  # pragma: no cover - exercised by whichever environment runs the tests
     if os.environ.get("FAULTMAP_NO_JIT", "") not in ("", "0"):
@@ -515,3 +518,103 @@ def robust_windows(
     res = {k: out[j] for j, k in enumerate(keys)}
     res["n"] = res["n"].astype(np.int64)
     return res
+
+
+# ---------------------------------------------------------------------------
+# Pairs of overlapping boxes (profiles x trace segments)
+# ---------------------------------------------------------------------------
+@_jit
+def _grid_count(b, x0, y0, inv_c, ncx, ncy, counts):  # pragma: no cover
+    for k in range(b.shape[0]):
+        cx0 = min(max(int(math.floor((b[k, 0] - x0) * inv_c)), 0), ncx - 1)
+        cx1 = min(max(int(math.floor((b[k, 2] - x0) * inv_c)), 0), ncx - 1)
+        cy0 = min(max(int(math.floor((b[k, 1] - y0) * inv_c)), 0), ncy - 1)
+        cy1 = min(max(int(math.floor((b[k, 3] - y0) * inv_c)), 0), ncy - 1)
+        for cy in range(cy0, cy1 + 1):
+            for cx in range(cx0, cx1 + 1):
+                counts[cy * ncx + cx + 1] += 1
+
+
+@_jit
+def _grid_fill(b, x0, y0, inv_c, ncx, ncy, start, items):  # pragma: no cover
+    fill = start[:-1].copy()
+    for k in range(b.shape[0]):
+        cx0 = min(max(int(math.floor((b[k, 0] - x0) * inv_c)), 0), ncx - 1)
+        cx1 = min(max(int(math.floor((b[k, 2] - x0) * inv_c)), 0), ncx - 1)
+        cy0 = min(max(int(math.floor((b[k, 1] - y0) * inv_c)), 0), ncy - 1)
+        cy1 = min(max(int(math.floor((b[k, 3] - y0) * inv_c)), 0), ncy - 1)
+        for cy in range(cy0, cy1 + 1):
+            for cx in range(cx0, cx1 + 1):
+                c = cy * ncx + cx
+                items[fill[c]] = k
+                fill[c] += 1
+
+
+@_jit
+def _grid_query(q, b, x0, y0, inv_c, ncx, ncy, start, items, out_i, out_j, count_only):  # pragma: no cover
+    seen = np.full(b.shape[0], -1, dtype=np.int64)
+    n = 0
+    for i in range(q.shape[0]):
+        cx0 = min(max(int(math.floor((q[i, 0] - x0) * inv_c)), 0), ncx - 1)
+        cx1 = min(max(int(math.floor((q[i, 2] - x0) * inv_c)), 0), ncx - 1)
+        cy0 = min(max(int(math.floor((q[i, 1] - y0) * inv_c)), 0), ncy - 1)
+        cy1 = min(max(int(math.floor((q[i, 3] - y0) * inv_c)), 0), ncy - 1)
+        for cy in range(cy0, cy1 + 1):
+            for cx in range(cx0, cx1 + 1):
+                c = cy * ncx + cx
+                for t in range(start[c], start[c + 1]):
+                    j = items[t]
+                    if seen[j] == i:
+                        continue
+                    seen[j] = i
+                    if q[i, 0] <= b[j, 2] and b[j, 0] <= q[i, 2] and q[i, 1] <= b[j, 3] and b[j, 1] <= q[i, 3]:
+                        if not count_only:
+                            out_i[n] = i
+                            out_j[n] = j
+                        n += 1
+    return n
+
+
+def box_pairs(q, b):
+    """All pairs (i, j) of query box ``q[i]`` and box ``b[j]`` that intersect (touching counts).
+
+    The same pairs as a ``shapely.STRtree`` of the ``b`` boxes queried with
+    the ``q`` boxes (envelopes only, no predicate), from a uniform grid of
+    cells about the size of the median query box (compiled).
+
+    Parameters
+    ----------
+    q, b : ndarray, shape (n, 4) and (m, 4)
+        Boxes as (xmin, ymin, xmax, ymax), finite.
+
+    Returns
+    -------
+    i, j : ndarray of int64
+        Indices into ``q`` and ``b``, sorted by ``i`` then in no set order.
+    """
+    q = np.ascontiguousarray(q, dtype=float)
+    b = np.ascontiguousarray(b, dtype=float)
+    if q.shape[0] == 0 or b.shape[0] == 0:
+        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
+    x0 = float(min(q[:, 0].min(), b[:, 0].min()))
+    y0 = float(min(q[:, 1].min(), b[:, 1].min()))
+    x1 = float(max(q[:, 2].max(), b[:, 2].max()))
+    y1 = float(max(q[:, 3].max(), b[:, 3].max()))
+    ext = np.maximum(q[:, 2] - q[:, 0], q[:, 3] - q[:, 1])
+    span = max(x1 - x0, y1 - y0, 1e-9)
+    # cells about the median query box, at most ~4 million of them
+    c = max(float(np.median(ext)), span / 2048.0, 1e-9)
+    ncx = int(min((x1 - x0) / c, 4096)) + 1
+    ncy = int(min((y1 - y0) / c, 4096)) + 1
+    inv_c = 1.0 / c
+    counts = np.zeros(ncx * ncy + 1, dtype=np.int64)
+    _grid_count(b, x0, y0, inv_c, ncx, ncy, counts)
+    start = np.cumsum(counts)
+    items = np.empty(int(start[-1]), dtype=np.int64)
+    _grid_fill(b, x0, y0, inv_c, ncx, ncy, start, items)
+    dummy = np.zeros(0, dtype=np.int64)
+    n = _grid_query(q, b, x0, y0, inv_c, ncx, ncy, start, items, dummy, dummy, True)
+    oi = np.empty(n, dtype=np.int64)
+    oj = np.empty(n, dtype=np.int64)
+    _grid_query(q, b, x0, y0, inv_c, ncx, ncy, start, items, oi, oj, False)
+    return oi, oj

@@ -24,6 +24,8 @@ from dataclasses import dataclass
 import numpy as np
 import shapely
 
+from faultmap import kernels
+
 __all__ = [
     "StationSet",
     "side_signs",
@@ -297,6 +299,24 @@ def trace_segments(lines) -> tuple[np.ndarray, np.ndarray]:
     return seg, idx[1:][same]
 
 
+def _overlapping(px, py, nx, ny, H, seg, *, use_jit=True):
+    """Pairs (profile, segment) whose bounding boxes overlap."""
+    ax, ay = px - H * nx, py - H * ny
+    bx, by = px + H * nx, py + H * ny
+    if use_jit and kernels.ENABLED:
+        q = np.c_[np.minimum(ax, bx), np.minimum(ay, by), np.maximum(ax, bx), np.maximum(ay, by)]
+        sb = np.c_[
+            np.minimum(seg[:, 0], seg[:, 2]),
+            np.minimum(seg[:, 1], seg[:, 3]),
+            np.maximum(seg[:, 0], seg[:, 2]),
+            np.maximum(seg[:, 1], seg[:, 3]),
+        ]
+        return kernels.box_pairs(q, sb)
+    prof = shapely.linestrings(np.stack([np.c_[ax, ay], np.c_[bx, by]], axis=1))
+    tree = shapely.STRtree(shapely.linestrings(seg.reshape(-1, 2, 2)))
+    return tree.query(prof)
+
+
 def crossing_limits(
     stations: StationSet,
     half_length_m,
@@ -305,6 +325,7 @@ def crossing_limits(
     line_ids=None,
     station_ids=None,
     own_exclusion_m=0.0,
+    use_jit: bool = True,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Distance along each profile to the nearest trace it crosses, per side.
 
@@ -323,6 +344,10 @@ def crossing_limits(
         ``stations.line``.
     own_exclusion_m : float
         Crossings of the own trace closer than this are the station itself.
+    use_jit : bool
+        Find the candidate pairs with the compiled grid of
+        :func:`faultmap.kernels.box_pairs` (default, when numba is
+        available) rather than a ``shapely.STRtree``: the same pairs.
 
     Returns
     -------
@@ -332,8 +357,8 @@ def crossing_limits(
 
     Notes
     -----
-    Candidates come from a shapely STRtree of the trace segments' bounding
-    boxes queried with the profiles' boxes; for each candidate pair the
+    Candidates are the pairs of overlapping profile and segment bounding
+    boxes (a uniform grid, or a shapely STRtree); for each candidate pair the
     crossing is then solved in closed form (2-D segment intersection:
     position along the profile and along the segment, geometry), all as
     array operations.
@@ -350,11 +375,7 @@ def crossing_limits(
     H = np.broadcast_to(np.asarray(half_length_m, dtype=float), (n,))
     px, py, nx, ny = stations.x, stations.y, stations.nx, stations.ny
     # candidates: profile and segment bounding boxes overlap (STRtree query without a predicate)
-    prof = shapely.linestrings(
-        np.stack([np.c_[px - H * nx, py - H * ny], np.c_[px + H * nx, py + H * ny]], axis=1)
-    )
-    tree = shapely.STRtree(shapely.linestrings(seg.reshape(-1, 2, 2)))
-    i, j = tree.query(prof)
+    i, j = _overlapping(px, py, nx, ny, H, seg, use_jit=use_jit)
     if i.size == 0:
         return lim_m, lim_p
     # solve P + t n = A + u (B - A): t along the profile, u along the segment

@@ -111,3 +111,45 @@ def test_robust_window_kernel_matches_array_code(loss, iterations, max_iteration
     # fits that failed (empty or one-sample windows) and fits that worked are both in the mix
     assert np.isnan(ref["a"]).any() and np.isfinite(ref["a"]).mean() > 0.5
 
+
+
+def test_box_pairs_match_strtree():
+    # reference library: shapely.STRtree.query (envelope intersection, touching included) on the same boxes,
+    # with zero-width boxes (axis-parallel segments), boxes sharing an edge exactly and far-away ones
+    import shapely
+
+    rng = np.random.default_rng(3)
+    q = rng.uniform(0.0, 1000.0, (800, 2))
+    q = np.c_[q, q + rng.uniform(0.0, 80.0, (800, 2))]
+    b = rng.uniform(0.0, 1000.0, (500, 2))
+    b = np.c_[b, b + rng.exponential(60.0, (500, 2))]
+    b[:40, 2] = b[:40, 0]  # vertical segments
+    b[40:80, 3] = b[40:80, 1]  # horizontal segments
+    b[80:120, 0] = q[:40, 2]  # touching the right edge of a query box
+    b[80:120, 2] = b[80:120, 0] + 5.0
+    b[120:125] += 5000.0  # outside everything
+    i, j = kernels.box_pairs(q, b)
+    tree = shapely.STRtree(shapely.box(b[:, 0], b[:, 1], b[:, 2], b[:, 3]))
+    ri, rj = tree.query(shapely.box(q[:, 0], q[:, 1], q[:, 2], q[:, 3]))
+    assert set(zip(i.tolist(), j.tolist(), strict=True)) == set(zip(ri.tolist(), rj.tolist(), strict=True))
+    assert i.size == len(set(zip(i.tolist(), j.tolist(), strict=True)))  # no pair twice
+    assert ri.size > 500
+
+
+def test_crossing_limits_same_with_grid_and_strtree():
+    # the throw step's use of box_pairs: the same crossing distances as with the shapely STRtree
+    import shapely
+
+    from faultmap.stations import crossing_limits, place_stations
+
+    rng = np.random.default_rng(8)
+    lines = np.array(
+        [shapely.LineString(np.cumsum(rng.normal(0.0, 300.0, (int(rng.integers(2, 9)), 2)), axis=0)) for _ in range(60)]
+    )
+    st = place_stations(lines, spacing_m=50.0, normal_window_m=100.0, side_sign=np.ones(len(lines)))
+    H = rng.uniform(50.0, 600.0, len(st))
+    a = crossing_limits(st, H, lines, own_exclusion_m=20.0, use_jit=True)
+    b = crossing_limits(st, H, lines, own_exclusion_m=20.0, use_jit=False)
+    for x, y in zip(a, b, strict=True):
+        assert np.array_equal(x, y)
+    assert np.isfinite(a[0]).sum() + np.isfinite(a[1]).sum() > 50  # crossings do occur
