@@ -148,6 +148,12 @@ def bilinear_profiles(flat, nr, nc, frac_r, frac_c, off_r, off_c, drow, dcol, K,
 # ---------------------------------------------------------------------------
 # Robust lines on windows of profile rows
 # ---------------------------------------------------------------------------
+# Layout: the windows of a group of rows are the columns of (w, g) float32 matrices (ZT samples,
+# MT 1/0 usable, WT weights), as in the array code, so every loop over a window's samples runs
+# over all rows at once (vectorised across rows) while each row's sums still accumulate sample by
+# sample, in the array code's order.
+
+
 @_jit
 def _solve(sw, sd, sdd, sz, sdz):  # pragma: no cover
     det = sw * sdd - sd * sd
@@ -158,233 +164,232 @@ def _solve(sw, sd, sdd, sz, sdz):  # pragma: no cover
 
 
 @_jit
-def _sums(W, z, d, L):  # pragma: no cover
-    """float32 normal-equation sums, accumulated sample by sample (as the reference)."""
-    s0 = np.float32(0.0)
-    s1 = np.float32(0.0)
-    s2 = np.float32(0.0)
-    s3 = np.float32(0.0)
-    s4 = np.float32(0.0)
-    for j in range(L):
-        t = W[j] * d[j]
-        s0 += W[j]
-        s1 += t
-        s2 += t * d[j]
-        t = W[j] * z[j]
-        s3 += t
-        s4 += t * d[j]
-    return np.float64(s0), np.float64(s1), np.float64(s2), np.float64(s3), np.float64(s4)
-
-
-@_jit
 def _f32_finite(v):  # pragma: no cover
     return np.float32(v) if np.isfinite(v) else np.float32(0.0)
 
 
 @_jit
-def _finish(W, z, d, L, a, b, autocorr):  # pragma: no cover
-    af = _f32_finite(a)
-    bf = _f32_finite(b)
-    ssr = np.float32(0.0)
-    lag = np.float32(0.0)
-    wlag = np.float32(0.0)
-    prev = np.float32(0.0)
-    for j in range(L):
-        r = z[j] - (d[j] * bf + af)
-        wr = W[j] * r
-        ssr += r * wr
-        if j > 0:
-            lag += wr * prev
-            wlag += W[j] * W[j - 1]
-        prev = wr
-    if not autocorr:
-        lag = np.float32(0.0)
-        wlag = np.float32(1.0)
-    return np.float64(ssr), np.float64(lag), np.float64(wlag)
-
-
-# Per-row state of the robust fits (columns of a float64 array)
-_A, _B, _SC, _INV, _BASE_A, _BASE_B, _N, _SW, _SD, _SDD, _SZ, _SDZ, _M1, _M2, _CNT = range(15)
-_NSTATE = 15
+def _lines32(a, b, act):  # pragma: no cover
+    """float32 intercepts and slopes of the active rows (0 where not finite), as the array code."""
+    af = np.empty(act.size, dtype=np.float32)
+    bf = np.empty(act.size, dtype=np.float32)
+    for k in range(act.size):
+        af[k] = _f32_finite(a[act[k]])
+        bf[k] = _f32_finite(b[act[k]])
+    return af, bf
 
 
 @_jit
-def _load(Z0, valid, rows, s, L, init_a, init_b, has_init, Zg, Mg, st):  # pragma: no cover
-    """Copy each row's window into a compact matrix (warm start applied) and fit it by least squares."""
+def _load(Z0, valid, rows, s, L, init_a, init_b, has_init, ZT, MT, base_a, base_b, cnt):  # pragma: no cover
+    """Copy each row's window into a column (warm start applied, zero where unusable)."""
     K = Z0.shape[1]
-    w = Zg.shape[1]
-    d = np.arange(1, w + 1).astype(np.float32)
+    w = ZT.shape[0]
     one = np.float32(1.0)
     zero = np.float32(0.0)
     for i in range(rows.size):
         r = rows[i]
         s0 = s[i]
-        Li = L[i]
-        cnt = 0
+        c = 0
         for j in range(w):
-            if j < Li and valid[r, min(s0 + j, K - 1)]:
-                Zg[i, j] = Z0[r, min(s0 + j, K - 1)]
-                Mg[i, j] = one
-                cnt += 1
+            col = min(s0 + j, K - 1)
+            if j < L[i] and valid[r, col]:
+                ZT[j, i] = Z0[r, col]
+                MT[j, i] = one
+                c += 1
             else:
-                Zg[i, j] = zero
-                Mg[i, j] = zero
-        base_a = 0.0
-        base_b = 0.0
-        good = False
-        if has_init:
-            a0 = init_a[i]
-            b0 = init_b[i]
-            good = np.isfinite(a0) and np.isfinite(b0)
-            if good:
-                base_a = a0 + b0 * float(s0)
-                base_b = b0
-                af = _f32_finite(base_a)
-                bf = _f32_finite(base_b)
-                for j in range(Li):
-                    Zg[i, j] = (Zg[i, j] - (d[j] * bf + af)) * Mg[i, j]
-        sw, sd, sdd, sz, sdz = _sums(Mg[i], Zg[i], d, Li)
-        a, b = _solve(sw, sd, sdd, sz, sdz)
-        if good:
-            a = 0.0
-            b = 0.0
-        st[i, _A] = a
-        st[i, _B] = b
-        st[i, _SC] = np.nan
-        st[i, _BASE_A] = base_a
-        st[i, _BASE_B] = base_b
-        st[i, _N] = np.rint(sw)
-        st[i, _SW] = sw
-        st[i, _SD] = sd
-        st[i, _SDD] = sdd
-        st[i, _SZ] = sz
-        st[i, _SDZ] = sdz
-        st[i, _CNT] = cnt
+                ZT[j, i] = zero
+                MT[j, i] = zero
+        cnt[i] = c
+        base_a[i] = 0.0
+        base_b[i] = 0.0
+        if has_init and np.isfinite(init_a[i]) and np.isfinite(init_b[i]):
+            # work on the samples minus the starting line (small numbers keep float32 sums exact)
+            base_a[i] = init_a[i] + init_b[i] * float(s0)
+            base_b[i] = init_b[i]
+            af = _f32_finite(base_a[i])
+            bf = _f32_finite(base_b[i])
+            for j in range(w):
+                ZT[j, i] = (ZT[j, i] - (np.float32(j + 1) * bf + af)) * MT[j, i]
 
 
 @_jit
-def _abs_residuals(Zg, Mg, L, st, A):  # pragma: no cover
-    """|residual| about the current lines; +inf where no sample (so a row sort puts them last)."""
-    w = Zg.shape[1]
-    d = np.arange(1, w + 1).astype(np.float32)
+def _weighted_sums(ZT, WT, act, S):  # pragma: no cover
+    """Normal-equation sums of the active columns, weights ``WT`` (float32, sample by sample)."""
+    n = act.size
+    s0 = np.zeros(n, dtype=np.float32)
+    s1 = np.zeros(n, dtype=np.float32)
+    s2 = np.zeros(n, dtype=np.float32)
+    s3 = np.zeros(n, dtype=np.float32)
+    s4 = np.zeros(n, dtype=np.float32)
+    for j in range(ZT.shape[0]):
+        dj = np.float32(j + 1)
+        for k in range(n):
+            i = act[k]
+            wj = WT[j, i]
+            t = wj * dj
+            s0[k] += wj
+            s1[k] += t
+            s2[k] += t * dj
+            t = wj * ZT[j, i]
+            s3[k] += t
+            s4[k] += t * dj
+    for k in range(n):
+        i = act[k]
+        S[0, i] = s0[k]
+        S[1, i] = s1[k]
+        S[2, i] = s2[k]
+        S[3, i] = s3[k]
+        S[4, i] = s4[k]
+
+
+@_jit
+def _abs_residuals(ZT, MT, a, b, A):  # pragma: no cover
+    """|residual| of every row about its line into A (g, w); +inf where no sample (sorted last)."""
+    w, g = ZT.shape
+    act = np.arange(g)
+    af, bf = _lines32(a, b, act)
     inf = np.float32(np.inf)
     zero = np.float32(0.0)
-    for i in range(Zg.shape[0]):
-        af = _f32_finite(st[i, _A])
-        bf = _f32_finite(st[i, _B])
-        for j in range(w):
-            if j < L[i] and Mg[i, j] != zero:
-                A[i, j] = abs(Zg[i, j] - (d[j] * bf + af))
-            else:
-                A[i, j] = inf
+    for j in range(w):
+        dj = np.float32(j + 1)
+        for i in range(g):
+            r = abs(ZT[j, i] - (dj * bf[i] + af[i]))
+            A[i, j] = r if MT[j, i] != zero else inf
 
 
 @_jit
-def _reweight(z, m, d, Li, af, bf, inv, loss, W):  # pragma: no cover
-    """Weights of one row's samples about its line (Tukey or Huber), and their normal-equation sums."""
+def _weight(r, inv, loss):  # pragma: no cover
+    """Tukey (loss 1) or Huber (loss 2) weight of a residual, in the array code's float32 steps."""
     one = np.float32(1.0)
     zero = np.float32(0.0)
-    s0 = zero
-    s1 = zero
-    s2 = zero
-    s3 = zero
-    s4 = zero
-    for j in range(Li):
-        u = (z[j] - (d[j] * bf + af)) * inv
-        if loss == 1:
-            u = u * u
-            u = one - u
-            u = max(u, zero)
-            u = u * u
-        else:
-            u = abs(u)
-            u = max(u, one)
-            u = one / u
-        wj = u * m[j]
-        W[j] = wj
-        t = wj * d[j]
-        s0 += wj
-        s1 += t
-        s2 += t * d[j]
-        t = wj * z[j]
-        s3 += t
-        s4 += t * d[j]
-    return np.float64(s0), np.float64(s1), np.float64(s2), np.float64(s3), np.float64(s4)
+    u = r * inv
+    if loss == 1:
+        u = u * u
+        u = one - u
+        u = u if u > zero else zero
+        return u * u
+    u = abs(u)
+    u = u if u > one else one
+    return one / u
 
 
 @_jit
-def _step(Zg, Mg, L, st, sc_row, inv_row, loss, Wg):  # pragma: no cover
-    """One reweighting pass of every row at the given scale; the new lines and how far they moved."""
-    w = Zg.shape[1]
-    d = np.arange(1, w + 1).astype(np.float32)
-    for i in range(Zg.shape[0]):
-        a = st[i, _A]
-        b = st[i, _B]
-        sw, sd, sdd, sz, sdz = _reweight(
-            Zg[i], Mg[i], d, L[i], _f32_finite(a), _f32_finite(b), inv_row[i], loss, Wg[i]
-        )
-        a_new, b_new = _solve(sw, sd, sdd, sz, sdz)
-        da = a_new - a
-        db = b_new - b
-        st[i, _M1] = abs(da + db * 1.0)
-        st[i, _M2] = abs(da + db * float(max(L[i], 1)))
+def _reweight(ZT, MT, a, b, inv, loss, WT, S):  # pragma: no cover
+    """Weights of every row's samples about its line and their normal-equation sums (all rows at once)."""
+    w, g = ZT.shape
+    af, bf = _lines32(a, b, np.arange(g))
+    for j in range(w):
+        dj = np.float32(j + 1)
+        for i in range(g):
+            WT[j, i] = _weight(ZT[j, i] - (dj * bf[i] + af[i]), inv[i], loss) * MT[j, i]
+    _weighted_sums(ZT, WT, np.arange(g), S)
+
+
+@_jit
+def _converge(ZT, MT, WT, act, a, b, inv, loss, span, m1, m2, S, it0, cap, tol, scale):  # pragma: no cover
+    """Reweight each listed row at its held scale, pass after pass, until its line stops moving."""
+    w = ZT.shape[0]
+    z = np.empty(w, dtype=np.float32)
+    m = np.empty(w, dtype=np.float32)
+    W = np.empty(w, dtype=np.float32)
+    for k in range(act.size):
+        i = act[k]
+        for j in range(w):
+            z[j] = ZT[j, i]
+            m[j] = MT[j, i]
+        it = it0
+        while True:
+            # NaN movement: nothing to gain
+            if not (it < cap and m1[i] == m1[i] and m2[i] == m2[i] and max(m1[i], m2[i]) >= tol * scale[i]):
+                break
+            af = _f32_finite(a[i])
+            bf = _f32_finite(b[i])
+            s0 = np.float32(0.0)
+            s1 = np.float32(0.0)
+            s2 = np.float32(0.0)
+            s3 = np.float32(0.0)
+            s4 = np.float32(0.0)
+            for j in range(w):
+                dj = np.float32(j + 1)
+                wj = _weight(z[j] - (dj * bf + af), inv[i], loss) * m[j]
+                W[j] = wj
+                t = wj * dj
+                s0 += wj
+                s1 += t
+                s2 += t * dj
+                t = wj * z[j]
+                s3 += t
+                s4 += t * dj
+            S[0, i] = s0
+            S[1, i] = s1
+            S[2, i] = s2
+            S[3, i] = s3
+            S[4, i] = s4
+            a_new, b_new = _solve(np.float64(s0), np.float64(s1), np.float64(s2), np.float64(s3), np.float64(s4))
+            da = a_new - a[i]
+            db = b_new - b[i]
+            m1[i] = abs(da + db * 1.0)
+            m2[i] = abs(da + db * span[i])
+            if np.isfinite(a_new):
+                a[i] = a_new
+                b[i] = b_new
+            for j in range(w):
+                WT[j, i] = W[j]
+            it += 1
+
+
+@_jit
+def _update(act, S, a, b, span, m1, m2):  # pragma: no cover
+    """Solve the active rows' lines from their sums; keep the new line where it is finite."""
+    for k in range(act.size):
+        i = act[k]
+        a_new, b_new = _solve(np.float64(S[0, i]), np.float64(S[1, i]), np.float64(S[2, i]),
+                              np.float64(S[3, i]), np.float64(S[4, i]))
+        da = a_new - a[i]
+        db = b_new - b[i]
+        m1[i] = abs(da + db * 1.0)
+        m2[i] = abs(da + db * span[i])
         if np.isfinite(a_new):
-            st[i, _A] = a_new
-            st[i, _B] = b_new
-        st[i, _SC] = sc_row[i]
-        st[i, _INV] = inv_row[i]
-        st[i, _SW] = sw
-        st[i, _SD] = sd
-        st[i, _SDD] = sdd
-        st[i, _SZ] = sz
-        st[i, _SDZ] = sdz
+            a[i] = a_new
+            b[i] = b_new
 
 
 @_jit
-def _converge_and_finish(Zg, Mg, L, st, s, has_init, loss, n_it, cap, tol, autocorr, scale_floor, Wg, out, sel):  # pragma: no cover
-    """Go on reweighting each row at its held scale until its line stops moving; then its statistics."""
-    w = Zg.shape[1]
-    d = np.arange(1, w + 1).astype(np.float32)
-    for i in range(Zg.shape[0]):
-        Li = L[i]
-        a = st[i, _A]
-        b = st[i, _B]
-        sw = st[i, _SW]
-        sd = st[i, _SD]
-        sdd = st[i, _SDD]
-        sz = st[i, _SZ]
-        sdz = st[i, _SDZ]
-        if loss == 0 or n_it <= 0:
-            if has_init:
-                a, b = _solve(sw, sd, sdd, sz, sdz)
-            ssr, lag, wlag = _finish(Mg[i], Zg[i], d, Li, a, b, autocorr)
-            scale = np.nan  # from the rms below
-        else:
-            sc = st[i, _SC]
-            inv = np.float32(st[i, _INV])
-            m1 = st[i, _M1]
-            m2 = st[i, _M2]
-            it = n_it
-            while True:
-                # NaN movement: nothing to gain
-                moving = (m1 == m1) and (m2 == m2) and max(m1, m2) >= tol * sc
-                if not (it < cap and moving):
-                    break
-                sw, sd, sdd, sz, sdz = _reweight(
-                    Zg[i], Mg[i], d, Li, _f32_finite(a), _f32_finite(b), inv, loss, Wg[i]
-                )
-                a_new, b_new = _solve(sw, sd, sdd, sz, sdz)
-                da = a_new - a
-                db = b_new - b
-                m1 = abs(da + db * 1.0)
-                m2 = abs(da + db * float(max(Li, 1)))
-                if np.isfinite(a_new):
-                    a = a_new
-                    b = b_new
-                it += 1
-            ssr, lag, wlag = _finish(Wg[i], Zg[i], d, Li, a, b, autocorr)
-            scale = sc
-        # statistics of the line (local abscissa), as faultmap.robust_lines._line_stats
+def _finish_sums(ZT, WT, a, b, autocorr, F):  # pragma: no cover
+    """Weighted residual sum of squares and lag-1 products of weighted residuals and of weights."""
+    w, g = ZT.shape
+    act = np.arange(g)
+    af, bf = _lines32(a, b, act)
+    ssr = np.zeros(g, dtype=np.float32)
+    lag = np.zeros(g, dtype=np.float32)
+    wlag = np.zeros(g, dtype=np.float32)
+    prev = np.zeros(g, dtype=np.float32)
+    for j in range(w):
+        dj = np.float32(j + 1)
+        for i in range(g):
+            r = ZT[j, i] - (dj * bf[i] + af[i])
+            wr = WT[j, i] * r
+            ssr[i] += r * wr
+            if j > 0:
+                lag[i] += wr * prev[i]
+                wlag[i] += WT[j, i] * WT[j - 1, i]
+            prev[i] = wr
+    for i in range(g):
+        F[0, i] = ssr[i]
+        F[1, i] = lag[i] if autocorr else 0.0
+        F[2, i] = wlag[i] if autocorr else 1.0
+
+
+@_jit
+def _line_stats(S, F, a, b, scale, base_a, base_b, off, scale_floor, n, sel, out):  # pragma: no cover
+    """Standard errors and fit statistics (as faultmap.robust_lines._line_stats), back to absolute units."""
+    for i in range(a.size):
+        sw = np.float64(S[0, i])
+        sd = np.float64(S[1, i])
+        sdd = np.float64(S[2, i])
+        ssr = np.float64(F[0, i])
+        lag = np.float64(F[1, i])
+        wlag = np.float64(F[2, i])
         det = sw * sdd - sd * sd
         rms = np.sqrt(ssr / sw)
         s2 = ssr / max(sw - 2.0, 1.0)
@@ -396,33 +401,33 @@ def _converge_and_finish(Zg, Mg, L, st, s, has_init, loss, n_it, cap, tol, autoc
         var_a = s2 * sdd / det * infl
         var_b = s2 * sw / det * infl
         cov_ab = -s2 * sd / det * infl
-        if scale != scale:
-            scale = max(rms if np.isfinite(rms) else scale_floor, scale_floor)
-        # back to the absolute abscissa and the samples before the warm start
-        off = float(s[i])
-        b = b + st[i, _BASE_B]
-        a = a + st[i, _BASE_A] - b * off
-        var_a = var_a - 2.0 * off * cov_ab + off * off * var_b
-        cov_ab = cov_ab - off * var_b
+        sc = scale[i]
+        if sc != sc:
+            sc = max(rms if np.isfinite(rms) else scale_floor, scale_floor)
+        o = off[i]
+        bb = b[i] + base_b[i]
+        aa = a[i] + base_a[i] - bb * o
+        var_a = var_a - 2.0 * o * cov_ab + o * o * var_b
+        cov_ab = cov_ab - o * var_b
         if not (sw > 1.5) or not (det > 0):
-            a = b = var_a = var_b = cov_ab = rms = ssr = np.nan
+            aa = bb = var_a = var_b = cov_ab = rms = ssr = np.nan
         k = sel[i]
-        out[0, k] = a
-        out[1, k] = b
+        out[0, k] = aa
+        out[1, k] = bb
         out[2, k] = var_a
         out[3, k] = var_b
         out[4, k] = cov_ab
-        out[5, k] = scale
+        out[5, k] = sc
         out[6, k] = rms
-        out[7, k] = st[i, _N]
+        out[7, k] = n[i]
         out[8, k] = sw
         out[9, k] = ssr
 
 
-#: Windows whose lengths differ by under this factor share one compact matrix.
+#: Windows whose lengths differ by under this factor share one group of columns.
 _GROWTH = 1.25
-#: Largest compact matrix, samples (bounded memory; the caller's matrices are already chunked).
-_GROUP_SAMPLES = 1 << 20
+#: Largest group, samples (bounded memory; the caller's matrices are already chunked).
+_GROUP_SAMPLES = 1 << 19
 
 
 def _groups(L):
@@ -442,18 +447,73 @@ def _groups(L):
     return out
 
 
+def _fit_group(Z0, valid, rows, s, L, ia, ib, has_init, code, tuning, n_it, cap, tol, autocorr, floor, out, sel):
+    g = rows.size
+    w = max(int(L.max()), 2)
+    ZT = np.empty((w, g), dtype=_F32)
+    MT = np.empty((w, g), dtype=_F32)
+    base_a = np.empty(g)
+    base_b = np.empty(g)
+    cnt = np.empty(g, dtype=np.int64)
+    _load(Z0, valid, rows, s, L, ia, ib, has_init, ZT, MT, base_a, base_b, cnt)
+    all_rows = np.arange(g)
+    S = np.empty((5, g), dtype=_F32)
+    _weighted_sums(ZT, MT, all_rows, S)
+    n = np.rint(S[0].astype(float))
+    a = np.full(g, np.nan)
+    b = np.full(g, np.nan)
+    m1 = np.empty(g)
+    m2 = np.empty(g)
+    span = np.maximum(L, 1).astype(float)
+    _update(all_rows, S, a, b, span, m1, m2)  # ordinary least squares
+    if has_init:
+        good = np.isfinite(ia) & np.isfinite(ib)
+        a[good] = 0.0  # the samples are relative to the starting line
+        b[good] = 0.0
+    scale = np.full(g, np.nan)
+    F = np.empty((3, g), dtype=_F32)
+    if code == 0 or n_it <= 0:
+        if has_init:
+            a[:] = np.nan
+            b[:] = np.nan
+            _update(all_rows, S, a, b, span, m1, m2)
+        _finish_sums(ZT, MT, a, b, autocorr, F)
+    else:
+        WT = np.empty((w, g), dtype=_F32)
+        A = np.empty((g, w), dtype=_F32)
+        rank = np.maximum((cnt - 1) // 2, 0)[:, None]
+        inv = np.empty(g, dtype=_F32)
+        for _ in range(n_it):
+            # scale: normalised MAD about the current lines (numpy's vectorised row sort), re-estimated
+            # at each of the first passes, then held
+            _abs_residuals(ZT, MT, a, b, A)
+            A.sort(axis=1)
+            med = np.take_along_axis(A, rank, axis=1)[:, 0].astype(float)
+            med[cnt == 0] = 0.0
+            scale = np.maximum(1.4826 * med, float(floor))
+            inv = (1.0 / (float(tuning) * scale)).astype(_F32)
+            _reweight(ZT, MT, a, b, inv, code, WT, S)
+            _update(all_rows, S, a, b, span, m1, m2)
+        # rows whose line still moves go on at their held scale
+        with np.errstate(invalid="ignore"):
+            act = np.flatnonzero(np.maximum(m1, m2) >= tol * scale)
+        if act.size and n_it < cap:
+            _converge(ZT, MT, WT, act, a, b, inv, code, span, m1, m2, S, n_it, cap, float(tol), scale)
+        _finish_sums(ZT, WT, a, b, autocorr, F)
+    _line_stats(S, F, a, b, scale, base_a, base_b, s.astype(float), float(floor), n, sel, out)
+
+
 def robust_windows(
     Z0, valid, rows, s, L, *, init, loss, tuning, iterations, max_iterations, tol, autocorr, scale_floor
 ):
     """Robust lines of the samples ``s .. s + L - 1`` (columns) of some rows of ``Z0`` (compiled).
 
-    The per-row form of :func:`faultmap.robust_lines._irls` on the windows
+    The compiled form of :func:`faultmap.robust_lines._irls` on the windows
     of :func:`faultmap.robust_lines._fit_windows` (same arguments, same
     results); see :func:`faultmap.robust_lines.robust_line_fits` for the
-    method. Windows are copied into compact matrices of similar lengths;
-    the passes that re-estimate the residual scale sort each matrix's
-    absolute residuals row by row with numpy (its vectorised sort is far
-    faster than any per-row selection), the rest runs row by row.
+    method. The passes that re-estimate the residual scale sort each
+    group's absolute residuals row by row with numpy (its vectorised sort is
+    far faster than any per-row selection).
 
     Returns
     -------
@@ -471,48 +531,11 @@ def robust_windows(
         ib = np.ascontiguousarray(init[1], dtype=float)
     else:
         ia = ib = np.zeros(nr)
-    code = LOSS_CODES[loss]
-    n_it = int(iterations)
     out = np.empty((10, nr))
     for sel in _groups(L):
-        g = sel.size
-        w = max(int(L[sel].max()), 2)
-        Zg = np.empty((g, w), dtype=_F32)
-        Mg = np.empty((g, w), dtype=_F32)
-        Wg = np.zeros((g, w), dtype=_F32)
-        st = np.empty((g, _NSTATE))
-        Lg = L[sel]
-        _load(Z0, valid, rows[sel], s[sel], Lg, ia[sel], ib[sel], has_init, Zg, Mg, st)
-        if code != 0 and n_it > 0:
-            A = np.empty((g, w), dtype=_F32)
-            cnt = st[:, _CNT].astype(np.int64)
-            rank = np.maximum((cnt - 1) // 2, 0)
-            ar = np.arange(g)
-            for _ in range(n_it):
-                # scale: normalised MAD about the current lines, re-estimated at each of these passes
-                _abs_residuals(Zg, Mg, Lg, st, A)
-                A.sort(axis=1)
-                med = A[ar, rank].astype(float)
-                med[cnt == 0] = 0.0
-                sc = np.maximum(1.4826 * med, float(scale_floor))
-                inv = (1.0 / (float(tuning) * sc)).astype(_F32)
-                _step(Zg, Mg, Lg, st, sc, inv, code, Wg)
-        _converge_and_finish(
-            Zg,
-            Mg,
-            Lg,
-            st,
-            s[sel],
-            has_init,
-            code,
-            n_it,
-            int(max_iterations),
-            float(tol),
-            bool(autocorr),
-            float(scale_floor),
-            Wg,
-            out,
-            sel,
+        _fit_group(
+            Z0, valid, rows[sel], s[sel], L[sel], ia[sel], ib[sel], has_init, LOSS_CODES[loss], float(tuning),
+            int(iterations), int(max_iterations), float(tol), bool(autocorr), float(scale_floor), out, sel,
         )
     keys = ("a", "b", "var_a", "var_b", "cov_ab", "scale", "rms", "n", "inliers", "ssr")
     res = {k: out[j] for j, k in enumerate(keys)}
