@@ -247,6 +247,7 @@ def main(argv=None):
     from faultmap.engine import Engine
     from faultmap.io.dem import open_dem
     from faultmap.throw import measure_throw
+    from faultmap.throw_batches import min_batches_for
 
     n_pix, n_faults = (2000, 200) if a.small else (8000, 2000)
     with tempfile.TemporaryDirectory(prefix="faultmap_bench_") as tmp:
@@ -275,9 +276,7 @@ def main(argv=None):
         dt2 = math.inf
         for _ in range(3):
             t0 = time.perf_counter()
-            res2 = measure_throw(
-                faults, dem, mapper=lambda f, b, p: eng.map(f, b), min_batches=4 * nthr if nthr > 1 else 1
-            )
+            res2 = measure_throw(faults, dem, mapper=lambda f, b, p: eng.map(f, b), min_batches=min_batches_for(eng))
             dt2 = min(dt2, time.perf_counter() - t0)
         same = np.allclose(
             res2.faults["max_throw_m"].to_numpy(float), res.faults["max_throw_m"].to_numpy(float), equal_nan=True

@@ -481,14 +481,14 @@ def _fit_group(Z0, valid, rows, s, L, ia, ib, has_init, code, tuning, n_it, cap,
     else:
         WT = np.empty((w, g), dtype=_F32)
         A = np.empty((g, w), dtype=_F32)
-        rank = np.maximum((cnt - 1) // 2, 0)[:, None]
+        rank = np.maximum((cnt - 1) // 2, 0)
         inv = np.empty(g, dtype=_F32)
         for _ in range(n_it):
             # scale: normalised MAD about the current lines (numpy's vectorised row sort), re-estimated
             # at each of the first passes, then held
             _abs_residuals(ZT, MT, a, b, A)
             A.sort(axis=1)
-            med = np.take_along_axis(A, rank, axis=1)[:, 0].astype(float)
+            med = A[all_rows, rank].astype(float)
             med[cnt == 0] = 0.0
             scale = np.maximum(1.4826 * med, float(floor))
             inv = (1.0 / (float(tuning) * scale)).astype(_F32)
@@ -641,3 +641,40 @@ def box_pairs(q, b):
     oj = np.empty(n, dtype=np.int64)
     _grid_query(q, b, x0, y0, inv_c, ncx, ncy, start, items, oi, oj, False)
     return oi, oj
+
+
+# ---------------------------------------------------------------------------
+# Voids of a DEM window
+# ---------------------------------------------------------------------------
+@_jit
+def _voids_to_nan(flat, voids):  # pragma: no cover
+    nan = np.float32(np.nan)
+    inf = np.float32(np.inf)
+    n = 0
+    for k in range(flat.size):
+        v = flat[k]
+        bad = v == inf or v == -inf
+        for t in range(voids.size):
+            bad = bad or v == voids[t]
+        if bad:
+            flat[k] = nan
+            n += 1
+    return n
+
+
+def voids_to_nan(arr, voids):
+    """Set void values and +-inf of a float32 array to NaN, in place, in one pass (compiled).
+
+    Parameters
+    ----------
+    arr : ndarray of float32, C-contiguous, writeable
+    voids : sequence of float
+        Void values, compared as float32 (the file's own type).
+
+    Returns
+    -------
+    int
+        Pixels set to NaN.
+    """
+    v = np.asarray([x for x in voids if not np.isnan(x)], dtype=_F32)
+    return int(_voids_to_nan(arr.reshape(-1), v))

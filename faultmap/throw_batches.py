@@ -32,7 +32,7 @@ from faultmap.stations import (
 )
 from faultmap.throw_params import ThrowParams
 
-__all__ = ["ThrowBatch", "plan_batches", "run_batch", "measure_batch"]
+__all__ = ["ThrowBatch", "plan_batches", "run_batch", "measure_batch", "min_batches_for"]
 
 _F32 = np.float32
 #: A window of up to this many pixels is read at once rather than in pieces (a read of this size
@@ -280,6 +280,22 @@ def _raw_frame(st: StationSet, ids, res) -> pd.DataFrame:
     for k in _RAW_COLUMNS:
         df[k] = res[k]
     return df
+
+
+def min_batches_for(engine) -> int:
+    """Fewest throw batches worth planning for an engine (results never depend on it).
+
+    One batch for a sequential run; two per thread in-process (the tiles'
+    windows overlap by a profile length, so more tiles read more of the
+    DEM, while two per thread still balance uneven tiles); four per worker
+    thread on Dask (the scheduler balances them over the workers).
+    """
+    if engine is None:
+        return 1
+    n = int(getattr(engine, "parallelism", 1))
+    if n <= 1:
+        return 1
+    return (2 if getattr(engine, "kind", "in-process") == "in-process" else 4) * n
 
 
 def plan_batches(

@@ -153,3 +153,22 @@ def test_crossing_limits_same_with_grid_and_strtree():
     for x, y in zip(a, b, strict=True):
         assert np.array_equal(x, y)
     assert np.isfinite(a[0]).sum() + np.isfinite(a[1]).sum() > 50  # crossings do occur
+
+
+def test_voids_to_nan_matches_the_array_rule():
+    # the array rule of faultmap.io.dem.read_window_array: a pixel is void when it equals a void value
+    # (compared in float32, the file's type) or is +-inf; NaN stays NaN; everything else is untouched
+    rng = np.random.default_rng(2)
+    a = rng.normal(500.0, 50.0, (300, 200)).astype("float32")
+    voids = [-9999.0, -3.4028234663852886e38, float("nan")]
+    a.flat[rng.choice(a.size, 500, replace=False)] = -9999.0
+    a.flat[rng.choice(a.size, 50, replace=False)] = np.float32(-3.4028234663852886e38)
+    a.flat[rng.choice(a.size, 30, replace=False)] = np.inf
+    a.flat[rng.choice(a.size, 30, replace=False)] = -np.inf
+    a.flat[rng.choice(a.size, 30, replace=False)] = np.nan
+    ref = a.copy()
+    bad = (ref == np.float32(-9999.0)) | (ref == np.float32(-3.4028234663852886e38)) | np.isinf(ref)
+    ref[bad] = np.nan
+    n = kernels.voids_to_nan(a, voids)
+    assert n == int(bad.sum()) and n > 500
+    assert _same(a, ref)

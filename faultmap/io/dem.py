@@ -366,10 +366,25 @@ def read_window_array(
                 file_nodata = src.nodatavals[dem.band - 1]
     except rasterio.errors.RasterioIOError as exc:  # pragma: no cover - disk errors
         raise InputFileError(f"{dem.path}: cannot read DEM window ({exc}).") from exc
+    from faultmap import kernels
+
     voids = list(dem._extra_voids)
     for v in (dem.nodata, file_nodata):
         if v is not None and not np.isnan(v):
             voids.append(float(v))
+    if (
+        mask is None
+        and raw.dtype == np.float32
+        and np.dtype(dtype) == np.float32
+        and raw.flags.c_contiguous
+        and raw.flags.writeable
+        and kernels.ENABLED
+    ):
+        # the common case (a float32 GeoTIFF): voids and +-inf to NaN in one compiled pass
+        kernels.voids_to_nan(raw, voids)
+        if dem.z_factor != 1.0:
+            raw *= np.float32(dem.z_factor)
+        return raw, win_transform(w, dem.transform), (rows.start, cols.start)
     bad = mask
     tmp = None
     for v in sorted(set(voids)):

@@ -43,9 +43,9 @@ def run(ctx, p: dict) -> None:
         smooth_stations=p["smooth_stations"],
         min_stations_per_fault=p["min_stations_per_fault"],
     )
-    engine = ctx.engine
-    parallel = getattr(engine, "parallelism", 1) if engine is not None else 1
-    min_batches = 4 * parallel if parallel > 1 else 1
+    from faultmap.throw_batches import min_batches_for
+
+    min_batches = min_batches_for(ctx.engine)
 
     def progress(iterable, total):
         return ctx.progress(iterable, total=total, desc="throw")
