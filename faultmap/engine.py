@@ -137,17 +137,27 @@ class Engine:
                         "check the address and that the scheduler is running."
                     ) from exc
             else:
-                # loopback only, no dashboard, quiet logs: a private cluster for this run
-                self._cluster = LocalCluster(
-                    n_workers=self.workers,
-                    threads_per_worker=1,
-                    processes=True,
-                    host="127.0.0.1",
-                    dashboard_address=None,
-                    scheduler_kwargs={"dashboard": False, "dashboard_address": "127.0.0.1:0"},
-                    silence_logs=logging.CRITICAL,  # worker errors reach the client as exceptions
-                )
+                import dask
+
+                # loopback only, no dashboard, quiet logs: a private cluster for this run. Dask's nannies
+                # give workers MALLOC_TRIM_THRESHOLD_=65536, which makes glibc hand every freed block
+                # back to the system, so each large temporary array faults its pages in again (measured:
+                # ~40 % more CPU in the throw batches, a third of it in the kernel); None unsets it.
+                with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}):
+                    self._cluster = self._local_cluster(LocalCluster)
                 self._client = Client(self._cluster, set_as_default=False)
+
+    def _local_cluster(self, LocalCluster):
+        """Start the private local cluster of single-threaded worker processes."""
+        return LocalCluster(
+            n_workers=self.workers,
+            threads_per_worker=1,
+            processes=True,
+            host="127.0.0.1",
+            dashboard_address=None,
+            scheduler_kwargs={"dashboard": False, "dashboard_address": "127.0.0.1:0"},
+            silence_logs=logging.CRITICAL,  # worker errors reach the client as exceptions
+        )
 
     # ------------------------------------------------------------------ description
     @property
