@@ -382,7 +382,7 @@ def _finish_sums(ZT, WT, a, b, autocorr, F):  # pragma: no cover
 
 @_jit
 def _line_stats(S, F, a, b, scale, base_a, base_b, off, scale_floor, n, sel, out):  # pragma: no cover
-    """Standard errors and fit statistics (as faultmap.robust_lines._line_stats), back to absolute units."""
+    """Compute standard errors and fit statistics (as faultmap.robust_lines._line_stats), in absolute units."""
     for i in range(a.size):
         sw = np.float64(S[0, i])
         sd = np.float64(S[1, i])

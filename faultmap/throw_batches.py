@@ -26,9 +26,7 @@ from faultmap.stations import (
     StationSet,
     crossing_limits,
     place_stations,
-    points_along,
     side_signs,
-    station_distances,
 )
 from faultmap.throw_params import ThrowParams
 
@@ -304,8 +302,9 @@ def plan_batches(
     """Split the work into spatial tiles that fit the memory budget.
 
     Stations are assigned to a grid of square tiles (clamped to the DEM);
-    each tile's batch carries the faults with stations in it plus every
-    trace that can cross their profiles. Tiles are sized so that one
+    each tile's batch carries the faults whose trace meets the tile (the
+    edge tiles reaching out beyond the DEM) plus every trace that can cross
+    their profiles, and measures the stations in the tile. Tiles are sized so that one
     window (tile plus the longest profile on each side) holds under 40 % of
     ``memory_budget_mb`` as float32, and small enough that the DEM gives at
     least ``min_batches`` tiles (so that several workers have work; tiles are
@@ -333,14 +332,21 @@ def plan_batches(
     nty = max(1, int(math.ceil((ymax - ymin) / size)))
     size = max((xmax - xmin) / ntx, (ymax - ymin) / nty)
     grid = (xmin, ymin, size)
-    L = shapely.length(lines)
-    line, dist = station_distances(L, params.spacing_for(L))
-    pts = points_along(lines, line, dist)
-    ix, iy = _tile_index(pts[:, 0], pts[:, 1], (*grid, 0, 0), bounds)
-    key = iy * ntx + ix
-    order = np.lexsort((line, key))
-    key_s, line_s = key[order], line[order]
+    # faults whose trace meets a tile: a superset of those with stations in it (a batch keeps only
+    # its tile's stations). Stations beyond the DEM are clamped into the edge tiles, so those tiles
+    # reach out without limit (in practice 1e9 m) on their outer sides.
+    far = 1e9
+    tx_all, ty_all = np.meshgrid(np.arange(ntx), np.arange(nty))
+    tx_all, ty_all = tx_all.ravel(), ty_all.ravel()
+    bx0 = np.where(tx_all == 0, xmin - far, xmin + tx_all * size)
+    bx1 = np.where(tx_all == ntx - 1, xmax + far, xmin + (tx_all + 1) * size)
+    by0 = np.where(ty_all == 0, ymin - far, ymin + ty_all * size)
+    by1 = np.where(ty_all == nty - 1, ymax + far, ymin + (ty_all + 1) * size)
     tree = shapely.STRtree(lines)
+    ti, li = tree.query(shapely.box(bx0, by0, bx1, by1), predicate="intersects")
+    key = ty_all[ti] * ntx + tx_all[ti]
+    order = np.lexsort((li, key))
+    key_s, line_s = key[order], li[order]
     batches = []
     for k in np.unique(key_s):
         members = np.unique(line_s[key_s == k])
