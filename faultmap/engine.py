@@ -32,6 +32,16 @@ __all__ = ["Engine", "make_engine", "engine_map", "run_capturing_warnings", "def
 
 #: How to get the optional Dask dependencies.
 DASK_HINT = "pip install 'faultmap[dask]'"
+#: Dask settings for the workers of the local cluster faultmap starts (and recommended for
+#: existing clusters, see docs/cluster.md). Dask's nannies give workers MALLOC_TRIM_THRESHOLD_=65536,
+#: which makes glibc hand every freed block back to the system, so each large temporary array faults
+#: its pages in again (measured: ~40 % more CPU in the throw batches, a third of it in the kernel);
+#: None unsets it. The worker's statistical profiler samples the task thread's stack every 10 ms
+#: under the GIL; measured, the batches' thread then ran only ~60 % of their wall time.
+WORKER_CONFIG = {
+    "distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None,
+    "distributed.worker.profile.enabled": False,
+}
 #: Most in-process threads used unless asked for (more mostly multiply the memory in use).
 MAX_DEFAULT_THREADS = 4
 
@@ -139,11 +149,9 @@ class Engine:
             else:
                 import dask
 
-                # loopback only, no dashboard, quiet logs: a private cluster for this run. Dask's nannies
-                # give workers MALLOC_TRIM_THRESHOLD_=65536, which makes glibc hand every freed block
-                # back to the system, so each large temporary array faults its pages in again (measured:
-                # ~40 % more CPU in the throw batches, a third of it in the kernel); None unsets it.
-                with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}):
+                # loopback only, no dashboard, quiet logs: a private cluster for this run, with two of
+                # Dask's worker defaults changed (see WORKER_CONFIG)
+                with dask.config.set(WORKER_CONFIG):
                     self._cluster = self._local_cluster(LocalCluster)
                 self._client = Client(self._cluster, set_as_default=False)
 

@@ -515,8 +515,9 @@ def measure_throw(
     if mapper is None:
         f, st = summarise_faults(f, st, smooth_stations=params.smooth_stations)
     else:
-        # chunks of whole faults, about two per batch of the step, through the same engine
-        n_chunks = max(2, len(batches))
+        # chunks of whole faults through the same engine: about one per worker thread (half the
+        # batches asked for; each chunk is small, so more would mostly cost task overhead)
+        n_chunks = max(2, min_batches // 2)
         f, st = summarise_faults(
             f,
             st,
