@@ -347,20 +347,26 @@ def plan_batches(
     key = ty_all[ti] * ntx + tx_all[ti]
     order = np.lexsort((li, key))
     key_s, line_s = key[order], li[order]
+    # context: every trace within a profile length of a tile (bounding boxes), all tiles at once
+    ci, cl = tree.query(
+        shapely.box(
+            xmin + tx_all * size - pad,
+            ymin + ty_all * size - pad,
+            xmin + (tx_all + 1) * size + pad,
+            ymin + (ty_all + 1) * size + pad,
+        )
+    )
+    ckey = ty_all[ci] * ntx + tx_all[ci]
+    corder = np.argsort(ckey, kind="stable")
+    ckey_s, cl_s = ckey[corder], cl[corder]
+    base = faults[["fault_id", "geometry", "dip_deg", "dip_dir_deg"]]
     batches = []
     for k in np.unique(key_s):
         members = np.unique(line_s[key_s == k])
         tx, ty = int(k % ntx), int(k // ntx)
-        tb = (
-            xmin + tx * size - pad,
-            ymin + ty * size - pad,
-            xmin + (tx + 1) * size + pad,
-            ymin + (ty + 1) * size + pad,
-        )
-        # context: traces near the tile and near the measured traces' own extent within it
-        near = tree.query(shapely.box(*tb))
-        keep = np.union1d(near, members)
-        sub = faults.iloc[keep][["fault_id", "geometry", "dip_deg", "dip_dir_deg"]].copy()
+        a, b = np.searchsorted(ckey_s, [k, k + 1])
+        keep = np.union1d(cl_s[a:b], members)
+        sub = base.iloc[keep]
         batches.append(
             ThrowBatch(
                 traces=sub,

@@ -113,3 +113,22 @@ def test_without_dask_the_option_says_how_to_install_and_in_process_still_works(
     with pytest.raises(NotAvailableError, match="--scheduler"):
         make_engine(scheduler="tcp://127.0.0.1:8786")
     assert make_engine(threads=2).map(operator.neg, [1, 2]) == [-1, -2]
+
+
+def _worker_settings():
+    import os
+
+    import dask
+
+    return os.environ.get("MALLOC_TRIM_THRESHOLD_"), dask.config.get("distributed.worker.profile.enabled")
+
+
+def test_local_cluster_workers_get_faultmap_settings(cluster):
+    # faultmap.engine.WORKER_CONFIG reaches the worker processes: no forced malloc trimming (Dask's own
+    # default is MALLOC_TRIM_THRESHOLD_=65536) and no statistical profiler; the client's config is unchanged
+    import dask
+
+    got = cluster.client.run(_worker_settings)
+    assert len(got) == 2
+    assert all(v == (None, False) for v in got.values())
+    assert dask.config.get("distributed.nanny.pre-spawn-environ")["MALLOC_TRIM_THRESHOLD_"] == 65536
