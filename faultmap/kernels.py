@@ -647,19 +647,18 @@ def box_pairs(q, b):
 # Voids of a DEM window
 # ---------------------------------------------------------------------------
 @_jit
-def _voids_to_nan(flat, voids):  # pragma: no cover
+def _voids_to_nan(flat, v0, v1, v2, v3, v4, v5):  # pragma: no cover
     nan = np.float32(np.nan)
     inf = np.float32(np.inf)
-    n = 0
     for k in range(flat.size):
         v = flat[k]
-        bad = v == inf or v == -inf
-        for t in range(voids.size):
-            bad = bad or v == voids[t]
-        if bad:
-            flat[k] = nan
-            n += 1
-    return n
+        # branch-free, so the loop vectorises; a NaN void value never matches
+        bad = (abs(v) == inf) | (v == v0) | (v == v1) | (v == v2) | (v == v3) | (v == v4) | (v == v5)
+        flat[k] = nan if bad else v
+
+
+#: Most void values :func:`voids_to_nan` takes at once.
+MAX_VOIDS = 6
 
 
 def voids_to_nan(arr, voids):
@@ -669,12 +668,11 @@ def voids_to_nan(arr, voids):
     ----------
     arr : ndarray of float32, C-contiguous, writeable
     voids : sequence of float
-        Void values, compared as float32 (the file's own type).
-
-    Returns
-    -------
-    int
-        Pixels set to NaN.
+        Up to :data:`MAX_VOIDS` void values, compared as float32 (the file's
+        own type); NaN entries are ignored (NaN stays NaN anyway).
     """
-    v = np.asarray([x for x in voids if not np.isnan(x)], dtype=_F32)
-    return int(_voids_to_nan(arr.reshape(-1), v))
+    v = [np.float32(x) for x in voids if not np.isnan(x)]
+    if len(v) > MAX_VOIDS:
+        raise ValueError(f"at most {MAX_VOIDS} void values, got {len(v)}")
+    v += [np.float32(np.nan)] * (MAX_VOIDS - len(v))
+    _voids_to_nan(arr.reshape(-1), *v)

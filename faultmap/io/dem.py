@@ -379,9 +379,10 @@ def read_window_array(
         and raw.flags.c_contiguous
         and raw.flags.writeable
         and kernels.ENABLED
+        and len(set(voids)) <= kernels.MAX_VOIDS
     ):
         # the common case (a float32 GeoTIFF): voids and +-inf to NaN in one compiled pass
-        kernels.voids_to_nan(raw, voids)
+        kernels.voids_to_nan(raw, sorted(set(voids)))
         if dem.z_factor != 1.0:
             raw *= np.float32(dem.z_factor)
         return raw, win_transform(w, dem.transform), (rows.start, cols.start)
