@@ -132,3 +132,17 @@ def test_local_cluster_workers_get_faultmap_settings(cluster):
     assert len(got) == 2
     assert all(v == (None, False) for v in got.values())
     assert dask.config.get("distributed.nanny.pre-spawn-environ")["MALLOC_TRIM_THRESHOLD_"] == 65536
+
+
+def test_thread_pool_restores_the_switch_interval():
+    # the pool shortens Python's GIL switch interval while it runs, and puts it back (also after an error)
+    import sys
+
+    seen = []
+    before = sys.getswitchinterval()
+    make_engine(threads=2).map(lambda _: seen.append(sys.getswitchinterval()), [0, 1, 2])
+    assert seen and max(seen) <= 0.001 + 1e-12
+    assert sys.getswitchinterval() == before
+    with pytest.raises(ValueError, match="math domain"):
+        make_engine(threads=2).map(math.sqrt, [4.0, -1.0])
+    assert sys.getswitchinterval() == before
