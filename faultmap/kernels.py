@@ -544,6 +544,61 @@ def robust_windows(
 
 
 # ---------------------------------------------------------------------------
+# Scarp edges from the profile gradients
+# ---------------------------------------------------------------------------
+@_jit
+def _edges(g, bg, zf, scale, up, lim, rows, n, m_run, grad_frac, found, first):  # pragma: no cover
+    K = g.shape[1]
+    half = np.float32(0.5)
+    gf = np.float32(grad_frac)
+    for i in range(n):
+        ra = rows[i]
+        rb = rows[i + n]
+        # the jump across the trace and the steepest excess gradient near it, either side
+        cross = (zf[ra] - zf[rb]) * half * np.float32(up[i])
+        near = np.float32(np.nan)
+        for r, k in ((ra, i), (rb, i + n)):
+            u = np.float32(up[k])
+            for j in range(1, min(6, K)):
+                e = (g[r, j] - bg[r]) * u
+                if e == e and (near != near or e > near):
+                    near = e
+        c0 = cross if cross == cross else np.float32(0.0)
+        n0 = near if near == near else np.float32(0.0)
+        peak = c0 if c0 >= n0 else n0
+        for r, k in ((ra, i), (rb, i + n)):
+            u = np.float32(up[k])
+            a = np.float64(gf * peak)
+            b = 1.06 * scale[k]
+            thr = np.float32(np.nan) if (a != a or b != b) else np.float32(a if a >= b else b)
+            # first sample from which m_run consecutive samples are undisturbed, within the usable part
+            run = 0
+            found[k] = False
+            first[k] = 1.0
+            for j in range(K):
+                e = (g[r, j] - bg[r]) * u
+                run = run + 1 if e < thr else 0
+                if run >= m_run:
+                    j0 = j - m_run + 1
+                    if float(j0 + m_run) <= lim[k]:
+                        found[k] = True
+                        first[k] = float(j0 + 1)
+                    break
+
+
+def scarp_edges(g, bg, z_first, scale, up, lim, rows, n, m_run, grad_frac=0.25):
+    """Compile :func:`faultmap.scarp_fit._scarp_edges` on rows ``rows`` (n stations, - sides first) of ``g``."""
+    found = np.zeros(2 * n, dtype=bool)
+    first = np.ones(2 * n)
+    _edges(
+        g, bg, z_first, np.ascontiguousarray(scale, dtype=float), np.ascontiguousarray(up, dtype=np.float32),
+        np.ascontiguousarray(lim, dtype=float), np.ascontiguousarray(rows, dtype=np.int64), int(n), int(m_run),
+        float(grad_frac), found, first,
+    )
+    return found, first
+
+
+# ---------------------------------------------------------------------------
 # Pairs of overlapping boxes (profiles x trace segments)
 # ---------------------------------------------------------------------------
 @_jit

@@ -16,6 +16,7 @@ import warnings as _warnings
 
 import numpy as np
 
+from faultmap import kernels
 from faultmap.robust_lines import _fit_windows, robust_line_fits
 
 __all__ = [
@@ -188,6 +189,7 @@ def fit_profile_matrix(
     scarp_iterations: int = 3,
     tolerance_frac: float = 0.02,
     row_samples=None,
+    use_jit: bool = True,
 ) -> dict:
     """Fit the far-field surfaces on both sides of many profiles.
 
@@ -219,6 +221,10 @@ def fit_profile_matrix(
         Samples of each row when some rows are shorter than ``k`` (their
         remaining columns NaN): a row then gives the same result as in a
         matrix of its own length. Default ``k`` for all.
+    use_jit : bool
+        Use the compiled kernels of :mod:`faultmap.kernels` (when numba is
+        available) for the robust fits and the scarp edges; ``False`` runs
+        the array code they repeat (the same numbers).
 
     Returns
     -------
@@ -300,6 +306,7 @@ def fit_profile_matrix(
             iterations=1 if coarse else iterations,
             max_iterations=1 if coarse else None,
             autocorr=not coarse,
+            use_jit=use_jit,
             **fitkw,
         )
         fit = part if redo is all_rows else _merge(fit, part, redo)
@@ -324,7 +331,10 @@ def fit_profile_matrix(
             si = np.flatnonzero(todo)
             rr = np.concatenate([si, si + n])
             g, bg, zf = grads
-            f_s, e_s = _scarp_edges(g[rr], bg[rr], zf[rr], sc[rr], up[rr], lim[rr], si.size, m_run)
+            if use_jit and kernels.ENABLED:
+                f_s, e_s = kernels.scarp_edges(g, bg, zf, sc[rr], up[rr], lim[rr], rr, si.size, m_run)
+            else:
+                f_s, e_s = _scarp_edges(g[rr], bg[rr], zf[rr], sc[rr], up[rr], lim[rr], si.size, m_run)
             found[rr] = f_s
             edge[rr] = e_s
         prev_sig, prev_q = signif, q
