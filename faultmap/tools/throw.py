@@ -272,7 +272,7 @@ TOOL = Tool(
             "memory_budget_mb",
             float,
             512.0,
-            "Memory for the DEM windows and sample arrays of one batch.",
+            "Memory for the DEM windows and sample arrays of one batch (each thread or worker runs one batch at a time).",
             unit="MB",
             min=16.0,
         ),
