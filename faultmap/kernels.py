@@ -602,12 +602,19 @@ def scarp_edges(g, bg, z_first, scale, up, lim, rows, n, m_run, grad_frac=0.25):
 # Pairs of overlapping boxes (profiles x trace segments)
 # ---------------------------------------------------------------------------
 @_jit
+def _cells(b, k, x0, y0, inv_c, ncx, ncy):  # pragma: no cover
+    """First and last grid column and row that box ``b[k]`` touches (clamped to the grid)."""
+    cx0 = min(max(int(math.floor((b[k, 0] - x0) * inv_c)), 0), ncx - 1)
+    cx1 = min(max(int(math.floor((b[k, 2] - x0) * inv_c)), 0), ncx - 1)
+    cy0 = min(max(int(math.floor((b[k, 1] - y0) * inv_c)), 0), ncy - 1)
+    cy1 = min(max(int(math.floor((b[k, 3] - y0) * inv_c)), 0), ncy - 1)
+    return cx0, cx1, cy0, cy1
+
+
+@_jit
 def _grid_count(b, x0, y0, inv_c, ncx, ncy, counts):  # pragma: no cover
     for k in range(b.shape[0]):
-        cx0 = min(max(int(math.floor((b[k, 0] - x0) * inv_c)), 0), ncx - 1)
-        cx1 = min(max(int(math.floor((b[k, 2] - x0) * inv_c)), 0), ncx - 1)
-        cy0 = min(max(int(math.floor((b[k, 1] - y0) * inv_c)), 0), ncy - 1)
-        cy1 = min(max(int(math.floor((b[k, 3] - y0) * inv_c)), 0), ncy - 1)
+        cx0, cx1, cy0, cy1 = _cells(b, k, x0, y0, inv_c, ncx, ncy)
         for cy in range(cy0, cy1 + 1):
             for cx in range(cx0, cx1 + 1):
                 counts[cy * ncx + cx + 1] += 1
@@ -617,10 +624,7 @@ def _grid_count(b, x0, y0, inv_c, ncx, ncy, counts):  # pragma: no cover
 def _grid_fill(b, x0, y0, inv_c, ncx, ncy, start, items):  # pragma: no cover
     fill = start[:-1].copy()
     for k in range(b.shape[0]):
-        cx0 = min(max(int(math.floor((b[k, 0] - x0) * inv_c)), 0), ncx - 1)
-        cx1 = min(max(int(math.floor((b[k, 2] - x0) * inv_c)), 0), ncx - 1)
-        cy0 = min(max(int(math.floor((b[k, 1] - y0) * inv_c)), 0), ncy - 1)
-        cy1 = min(max(int(math.floor((b[k, 3] - y0) * inv_c)), 0), ncy - 1)
+        cx0, cx1, cy0, cy1 = _cells(b, k, x0, y0, inv_c, ncx, ncy)
         for cy in range(cy0, cy1 + 1):
             for cx in range(cx0, cx1 + 1):
                 c = cy * ncx + cx
@@ -633,10 +637,7 @@ def _grid_query(q, b, x0, y0, inv_c, ncx, ncy, start, items, out_i, out_j, count
     seen = np.full(b.shape[0], -1, dtype=np.int64)
     n = 0
     for i in range(q.shape[0]):
-        cx0 = min(max(int(math.floor((q[i, 0] - x0) * inv_c)), 0), ncx - 1)
-        cx1 = min(max(int(math.floor((q[i, 2] - x0) * inv_c)), 0), ncx - 1)
-        cy0 = min(max(int(math.floor((q[i, 1] - y0) * inv_c)), 0), ncy - 1)
-        cy1 = min(max(int(math.floor((q[i, 3] - y0) * inv_c)), 0), ncy - 1)
+        cx0, cx1, cy0, cy1 = _cells(q, i, x0, y0, inv_c, ncx, ncy)
         for cy in range(cy0, cy1 + 1):
             for cx in range(cx0, cx1 + 1):
                 c = cy * ncx + cx
