@@ -14,7 +14,8 @@ run, in profile samples per second:
    ``scipy.ndimage.map_coordinates`` on the DEM already in memory (the
    practical ceiling), and the same preceded by reading the whole DEM.
 
-Timings are the best of three runs for the step (both ways) and the raw gather (the
+Timings are the best of three rounds, each timing the step (both ways) and the raw gather in
+turn, so that a drift of the machine's speed during the run does not favour one of them (the
 machine may be shared; the load average is printed). The throw step's sample
 count includes the first, shorter profiles of stations measured again with
 longer ones; the raw gather samples the final profiles only.
@@ -262,33 +263,34 @@ def main(argv=None):
             f"{faults.geometry.length.sum() / 1000:.0f} km of trace, GeoTIFF {size_mb:.0f} MB, built in {t_build:.1f} s"
         )
 
-        measure_throw(faults.iloc[:20], dem)  # warm-up (imports, page cache)
-        best = None
-        for _ in range(3):
-            t0 = time.perf_counter()
-            res = measure_throw(faults, dem)
-            dt = time.perf_counter() - t0
-            best = dt if best is None else min(best, dt)
-        n_samp = res.n_samples
+        measure_throw(faults.iloc[:20], dem)  # warm-up (imports, compiled kernels, page cache)
         # the default engine: in-process, one thread per core (at most 4), batches as the tool plans them
         eng = Engine()
         nthr = eng.threads
-        dt2 = math.inf
+        res = measure_throw(faults, dem)
+        st = res.stations
+        step = res.params.sample_step_m
+        px, py = sample_points(st, step)
+        # the three are timed in turn, round after round (best of each), so a drift of the machine's speed
+        # during the run does not favour one of them
+        best = dt2 = t_read = t_gather = math.inf
         for _ in range(3):
+            t0 = time.perf_counter()
+            res = measure_throw(faults, dem)
+            best = min(best, time.perf_counter() - t0)
             t0 = time.perf_counter()
             res2 = measure_throw(faults, dem, mapper=lambda f, b, p: eng.map(f, b), min_batches=min_batches_for(eng))
             dt2 = min(dt2, time.perf_counter() - t0)
+            tr, tg = raw_gather(tif, px, py, repeat=1)
+            t_read, t_gather = min(t_read, tr), min(t_gather, tg)
+        n_samp = res.n_samples
         same = np.allclose(
             res2.faults["max_throw_m"].to_numpy(float), res.faults["max_throw_m"].to_numpy(float), equal_nan=True
         )
-        st = res.stations
-        step = res.params.sample_step_m
         ok = (st["status"] == "ok").mean()
         truth = faults.set_index("fault_id")["max_throw_m"]
         rel = (res.faults.set_index("fault_id")["max_throw_m"] / truth - 1.0).dropna()
 
-        px, py = sample_points(st, step)
-        t_read, t_gather = raw_gather(tif, px, py)
         n_naive, t_naive = naive_loop(tif, st, step, a.naive_stations, res.params.scarp_halfwidth_m)
 
         rate = n_samp / best
