@@ -1,27 +1,31 @@
 """Compiled kernels for the throw step's hot loops (numba), with the numpy code as the reference.
 
-Two kernels, each the per-profile form of an array routine that stays in
-the package as the reference implementation (and the fallback when numba
+Each kernel is the compiled form of an array routine that stays in the
+package as the reference implementation (and runs instead when numba
 cannot be imported or ``FAULTMAP_NO_JIT=1`` is set):
 
 * :func:`bilinear_profiles` samples the DEM along both sides of many
   profiles: :func:`faultmap.profiles.sample_profiles`.
 * :func:`robust_windows` fits robust lines to a window of samples of many
   profile rows: :func:`faultmap.robust_lines._fit_windows`.
+* :func:`scarp_edges` finds where each side's scarp ends:
+  :func:`faultmap.scarp_fit._scarp_edges`.
 * :func:`box_pairs` finds the profiles and trace segments whose boxes
   overlap: a ``shapely.STRtree`` query in
   :func:`faultmap.stations.crossing_limits`.
+* :func:`voids_to_nan` sets the voids of a DEM window to NaN:
+  :func:`faultmap.io.dem.read_window_array`.
 
-Both repeat the reference's float32 arithmetic operation by operation and
+They repeat the reference's float32 arithmetic operation by operation and
 accumulate every sum sample by sample in the same order, so they return
-the same numbers (the tests compare them). Each profile is handled on its
-own, so results never depend on how the work was batched. The kernels
-release the GIL: an engine running batches in threads runs them in
-parallel. They are serial inside (no hidden thread pool competing with
-the engine's workers).
+the same numbers (``tests/test_kernels.py`` compares them). Each profile
+is handled on its own, so results never depend on how the work was
+batched. The kernels release the GIL: an engine running batches in
+threads runs them in parallel. They are serial inside (no hidden thread
+pool competing with the engine's workers).
 
-Compilation happens once per machine (numba's on-disk cache); the first
-call in a new environment takes a few seconds.
+Compilation happens once per environment (numba's on-disk cache); the
+first call in a new environment takes several seconds.
 """
 
 from __future__ import annotations
@@ -31,7 +35,7 @@ import os
 
 import numpy as np
 
-__all__ = ["ENABLED", "bilinear_profiles", "robust_windows", "box_pairs"]
+__all__ = ["ENABLED", "bilinear_profiles", "robust_windows", "scarp_edges", "box_pairs", "voids_to_nan"]
 
 try:  # pragma: no cover - exercised by whichever environment runs the tests
     if os.environ.get("FAULTMAP_NO_JIT", "") not in ("", "0"):
