@@ -173,13 +173,13 @@ def _f32_finite(v):  # pragma: no cover
 
 
 @_jit
-def _lines32(a, b, act):  # pragma: no cover
-    """float32 intercepts and slopes of the active rows (0 where not finite), as the array code."""
-    af = np.empty(act.size, dtype=np.float32)
-    bf = np.empty(act.size, dtype=np.float32)
-    for k in range(act.size):
-        af[k] = _f32_finite(a[act[k]])
-        bf[k] = _f32_finite(b[act[k]])
+def _lines32(a, b):  # pragma: no cover
+    """float32 intercepts and slopes (0 where not finite), as the array code uses them."""
+    af = np.empty(a.size, dtype=np.float32)
+    bf = np.empty(a.size, dtype=np.float32)
+    for i in range(a.size):
+        af[i] = _f32_finite(a[i])
+        bf[i] = _f32_finite(b[i])
     return af, bf
 
 
@@ -217,41 +217,27 @@ def _load(Z0, valid, rows, s, L, init_a, init_b, has_init, ZT, MT, base_a, base_
 
 
 @_jit
-def _weighted_sums(ZT, WT, act, S):  # pragma: no cover
-    """Normal-equation sums of the active columns, weights ``WT`` (float32, sample by sample)."""
-    n = act.size
-    s0 = np.zeros(n, dtype=np.float32)
-    s1 = np.zeros(n, dtype=np.float32)
-    s2 = np.zeros(n, dtype=np.float32)
-    s3 = np.zeros(n, dtype=np.float32)
-    s4 = np.zeros(n, dtype=np.float32)
+def _weighted_sums(ZT, WT, S):  # pragma: no cover
+    """Normal-equation sums of every column, weights ``WT`` (float32, sample by sample) into ``S``."""
+    S[:] = 0.0
     for j in range(ZT.shape[0]):
         dj = np.float32(j + 1)
-        for k in range(n):
-            i = act[k]
+        for i in range(ZT.shape[1]):
             wj = WT[j, i]
             t = wj * dj
-            s0[k] += wj
-            s1[k] += t
-            s2[k] += t * dj
+            S[0, i] += wj
+            S[1, i] += t
+            S[2, i] += t * dj
             t = wj * ZT[j, i]
-            s3[k] += t
-            s4[k] += t * dj
-    for k in range(n):
-        i = act[k]
-        S[0, i] = s0[k]
-        S[1, i] = s1[k]
-        S[2, i] = s2[k]
-        S[3, i] = s3[k]
-        S[4, i] = s4[k]
+            S[3, i] += t
+            S[4, i] += t * dj
 
 
 @_jit
 def _abs_residuals(ZT, MT, a, b, A):  # pragma: no cover
     """|residual| of every row about its line into A (g, w); +inf where no sample (sorted last)."""
     w, g = ZT.shape
-    act = np.arange(g)
-    af, bf = _lines32(a, b, act)
+    af, bf = _lines32(a, b)
     inf = np.float32(np.inf)
     zero = np.float32(0.0)
     for j in range(w):
@@ -281,12 +267,12 @@ def _weight(r, inv, loss):  # pragma: no cover
 def _reweight(ZT, MT, a, b, inv, loss, WT, S):  # pragma: no cover
     """Weights of every row's samples about its line and their normal-equation sums (all rows at once)."""
     w, g = ZT.shape
-    af, bf = _lines32(a, b, np.arange(g))
+    af, bf = _lines32(a, b)
     for j in range(w):
         dj = np.float32(j + 1)
         for i in range(g):
             WT[j, i] = _weight(ZT[j, i] - (dj * bf[i] + af[i]), inv[i], loss) * MT[j, i]
-    _weighted_sums(ZT, WT, np.arange(g), S)
+    _weighted_sums(ZT, WT, S)
 
 
 @_jit
@@ -343,10 +329,9 @@ def _converge(ZT, MT, WT, act, a, b, inv, loss, span, m1, m2, S, it0, cap, tol, 
 
 
 @_jit
-def _update(act, S, a, b, span, m1, m2):  # pragma: no cover
-    """Solve the active rows' lines from their sums; keep the new line where it is finite."""
-    for k in range(act.size):
-        i = act[k]
+def _update(S, a, b, span, m1, m2):  # pragma: no cover
+    """Solve every row's line from its sums; keep the new line where it is finite."""
+    for i in range(a.size):
         a_new, b_new = _solve(np.float64(S[0, i]), np.float64(S[1, i]), np.float64(S[2, i]),
                               np.float64(S[3, i]), np.float64(S[4, i]))
         da = a_new - a[i]
@@ -362,8 +347,7 @@ def _update(act, S, a, b, span, m1, m2):  # pragma: no cover
 def _finish_sums(ZT, WT, a, b, autocorr, F):  # pragma: no cover
     """Weighted residual sum of squares and lag-1 products of weighted residuals and of weights."""
     w, g = ZT.shape
-    act = np.arange(g)
-    af, bf = _lines32(a, b, act)
+    af, bf = _lines32(a, b)
     ssr = np.zeros(g, dtype=np.float32)
     lag = np.zeros(g, dtype=np.float32)
     wlag = np.zeros(g, dtype=np.float32)
@@ -462,14 +446,14 @@ def _fit_group(Z0, valid, rows, s, L, ia, ib, has_init, code, tuning, n_it, cap,
     _load(Z0, valid, rows, s, L, ia, ib, has_init, ZT, MT, base_a, base_b, cnt)
     all_rows = np.arange(g)
     S = np.empty((5, g), dtype=_F32)
-    _weighted_sums(ZT, MT, all_rows, S)
+    _weighted_sums(ZT, MT, S)
     n = np.rint(S[0].astype(float))
     a = np.full(g, np.nan)
     b = np.full(g, np.nan)
     m1 = np.empty(g)
     m2 = np.empty(g)
     span = np.maximum(L, 1).astype(float)
-    _update(all_rows, S, a, b, span, m1, m2)  # ordinary least squares
+    _update(S, a, b, span, m1, m2)  # ordinary least squares
     if has_init:
         good = np.isfinite(ia) & np.isfinite(ib)
         a[good] = 0.0  # the samples are relative to the starting line
@@ -480,7 +464,7 @@ def _fit_group(Z0, valid, rows, s, L, ia, ib, has_init, code, tuning, n_it, cap,
         if has_init:
             a[:] = np.nan
             b[:] = np.nan
-            _update(all_rows, S, a, b, span, m1, m2)
+            _update(S, a, b, span, m1, m2)
         _finish_sums(ZT, MT, a, b, autocorr, F)
     else:
         WT = np.empty((w, g), dtype=_F32)
@@ -497,7 +481,7 @@ def _fit_group(Z0, valid, rows, s, L, ia, ib, has_init, code, tuning, n_it, cap,
             scale = np.maximum(1.4826 * med, float(floor))
             inv = (1.0 / (float(tuning) * scale)).astype(_F32)
             _reweight(ZT, MT, a, b, inv, code, WT, S)
-            _update(all_rows, S, a, b, span, m1, m2)
+            _update(S, a, b, span, m1, m2)
         # rows whose line still moves go on at their held scale
         with np.errstate(invalid="ignore"):
             act = np.flatnonzero(np.maximum(m1, m2) >= tol * scale)
