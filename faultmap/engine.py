@@ -21,14 +21,24 @@ Dask (``pip install 'faultmap[dask]'``) is only imported for the last two.
 
 from __future__ import annotations
 
+import contextlib
 import logging
+import threading
 import warnings
 from collections.abc import Callable, Sequence
 from typing import Any
 
 from faultmap.errors import FaultmapError, NotAvailableError, ParameterError
 
-__all__ = ["Engine", "make_engine", "engine_map", "run_capturing_warnings", "default_threads", "DASK_HINT"]
+__all__ = [
+    "Engine",
+    "make_engine",
+    "engine_map",
+    "run_capturing_warnings",
+    "default_threads",
+    "old_objects_frozen",
+    "DASK_HINT",
+]
 
 #: How to get the optional Dask dependencies.
 DASK_HINT = "pip install 'faultmap[dask]'"
@@ -46,6 +56,41 @@ WORKER_CONFIG = {
 SWITCH_INTERVAL_S = 0.001
 #: Most in-process threads used unless asked for (more mostly multiply the memory in use).
 MAX_DEFAULT_THREADS = 4
+
+
+_FREEZE_LOCK = threading.Lock()
+_FREEZE_DEPTH = 0
+
+
+@contextlib.contextmanager
+def old_objects_frozen():
+    """Keep Python's cyclic garbage collector off the objects that existed before a step.
+
+    A step that creates tens of thousands of objects (one shapely point per
+    station) triggers full collections, and each full collection walks every
+    object of the process: measured ~80 ms each on the throw benchmark, in
+    about half the runs, with every thread stopped meanwhile. Inside this
+    context the objects that existed at its start are moved to the
+    collector's permanent generation (``gc.freeze``, Python >= 3.7), so
+    collections walk only the step's own objects; on leaving, they return
+    to the oldest generation (``gc.unfreeze``), so nothing is kept alive
+    longer than without it. Re-entrant: only the outermost context freezes
+    and unfreezes.
+    """
+    import gc
+
+    global _FREEZE_DEPTH
+    with _FREEZE_LOCK:
+        _FREEZE_DEPTH += 1
+        if _FREEZE_DEPTH == 1:
+            gc.freeze()
+    try:
+        yield
+    finally:
+        with _FREEZE_LOCK:
+            _FREEZE_DEPTH -= 1
+            if _FREEZE_DEPTH == 0:
+                gc.unfreeze()
 
 
 def default_threads() -> int:

@@ -54,6 +54,7 @@ from faultmap.along_strike import (  # noqa: F401  (re-exported)
     _smooth_profiles,
     summarise_faults,
 )
+from faultmap.engine import old_objects_frozen
 from faultmap.errors import CRSError, InputError, ParameterError
 from faultmap.linkage import _station_lookup, linkage_zones, system_profile  # noqa: F401  (re-exported)
 from faultmap.prepare import _ids
@@ -321,6 +322,7 @@ def _check_faults(faults) -> gpd.GeoDataFrame:
     return f
 
 
+@old_objects_frozen()
 def measure_throw(
     faults: gpd.GeoDataFrame,
     dem,

@@ -146,3 +146,27 @@ def test_thread_pool_restores_the_switch_interval():
     with pytest.raises(ValueError, match="math domain"):
         make_engine(threads=2).map(math.sqrt, [4.0, -1.0])
     assert sys.getswitchinterval() == before
+
+
+def test_old_objects_frozen_freezes_only_inside_and_nests():
+    # objects existing at entry go to the collector's permanent generation (gc.freeze) and come back
+    # on leaving (gc.unfreeze), also after an error; nested contexts leave that to the outermost
+    import gc
+
+    from faultmap.engine import old_objects_frozen
+
+    assert gc.get_freeze_count() == 0
+    with old_objects_frozen():
+        frozen = gc.get_freeze_count()
+        assert frozen > 1000  # at least the objects of the imported modules
+        with old_objects_frozen():
+            assert gc.get_freeze_count() == frozen
+        assert gc.get_freeze_count() == frozen
+        garbage = [[]]
+        garbage[0].append(garbage)  # a cycle made inside is still collected inside
+        del garbage
+        assert gc.collect() >= 1
+    assert gc.get_freeze_count() == 0
+    with pytest.raises(RuntimeError), old_objects_frozen():
+        raise RuntimeError("boom")
+    assert gc.get_freeze_count() == 0
