@@ -429,12 +429,30 @@ def _vertex_between_stations(i, g, d, T, se, usable, coef, key):
     return val, pos
 
 
+def _sorted_by_group(group, d) -> bool:
+    """Whether stations are in (group, distance) order."""
+    if group.size < 2:
+        return True
+    dg = np.diff(group)
+    return bool(np.all(dg >= 0) and np.all((dg > 0) | (np.diff(d) >= 0)))
+
+
 def _grouped_trapz(group, d, v, L, n_groups):
     """Integral over [0, L_g] of the piecewise-linear curve through (d, v), 0 at both ends."""
     g = np.concatenate([np.arange(n_groups), group, np.arange(n_groups)])
     dd = np.concatenate([np.zeros(n_groups), d, L])
     vv = np.concatenate([np.zeros(n_groups), v, np.zeros(n_groups)])
-    o = np.lexsort((dd, g))
+    if _sorted_by_group(group, d):
+        # stations already in (group, distance) order: put each group's two end points around its
+        # stations without sorting (a stable sort would give this same order)
+        pos = np.searchsorted(group, np.arange(n_groups))  # first station of each group
+        o = np.empty(g.size, dtype=np.int64)
+        n = group.size
+        o[pos + 2 * np.arange(n_groups)] = np.arange(n_groups)
+        o[np.arange(n) + 2 * group + 1] = n_groups + np.arange(n)
+        o[np.r_[pos[1:], n] + 2 * np.arange(n_groups) + 1] = n_groups + n + np.arange(n_groups)
+    else:
+        o = np.lexsort((dd, g))
     g, dd, vv = g[o], dd[o], vv[o]
     same = g[1:] == g[:-1]
     seg = 0.5 * (vv[1:] + vv[:-1]) * (dd[1:] - dd[:-1])
@@ -492,7 +510,10 @@ def summarise_faults(
     length of each tip.
     """
     f = faults.copy()
-    st = stations.sort_values(["fault_id", "dist_m"], kind="stable").reset_index(drop=True)
+    if _sorted_by_group(stations["fault_id"].to_numpy(), stations["dist_m"].to_numpy(dtype=float)):
+        st = stations.reset_index(drop=True)
+    else:
+        st = stations.sort_values(["fault_id", "dist_m"], kind="stable").reset_index(drop=True)
     fid = f["fault_id"].to_numpy()
     pos = pd.Series(np.arange(len(f)), index=fid)
     g = st["fault_id"].map(pos).to_numpy()

@@ -189,16 +189,19 @@ def finalise_stations(raw: pd.DataFrame, faults: pd.DataFrame, hw_sign) -> pd.Da
     shift the projected levels (zero for a planar surface).
     """
     df = raw.copy()
-    dip = df["fault_id"].map(
-        pd.Series(faults["dip_deg"].to_numpy(dtype=float), index=faults["fault_id"].to_numpy())
-    )
-    s = df["fault_id"].map(pd.Series(hw_sign)).fillna(1.0).to_numpy(dtype=float)
+    fid = df["fault_id"].to_numpy()
+    at = pd.Index(faults["fault_id"].to_numpy()).get_indexer(fid)
+    dip = np.where(at >= 0, faults["dip_deg"].to_numpy(dtype=float)[at], np.nan)
+    hw = pd.Series(hw_sign)
+    at = pd.Index(hw.index).get_indexer(fid)
+    s = np.where(at >= 0, hw.to_numpy(dtype=float)[at], np.nan)
+    s = np.where(np.isnan(s), 1.0, s)
     s = np.where(s == 0, 1.0, s)
     vs = s * df["vs_plus_m"].to_numpy(dtype=float)
     b = s * df["slope_plus"].to_numpy(dtype=float)  # dz/du towards the hanging wall
     se_vs = df["vs_se_m"].to_numpy(dtype=float)
     se_b = df["slope_se"].to_numpy(dtype=float)
-    td = np.tan(np.radians(dip.to_numpy(dtype=float)))
+    td = np.tan(np.radians(dip))
     plan = df["planarity_m"].to_numpy(dtype=float) if "planarity_m" in df.columns else np.zeros(len(df))
     plan = np.nan_to_num(plan)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -209,21 +212,22 @@ def finalise_stations(raw: pd.DataFrame, faults: pd.DataFrame, hw_sign) -> pd.Da
     poor = df["poor"].to_numpy(dtype=bool) | ~(f >= 0.25) | ~np.isfinite(T)
     status = np.where(geo != "", geo, np.where(poor, "poor_fit", "ok"))
     fitted = (geo == "") | (geo == "truncated")
-    okm = status == "ok"
-    df["vert_sep_m"] = np.where(np.isin(status, ("ok", "poor_fit")), vs, np.nan)
-    df["vert_sep_err_m"] = np.where(np.isin(status, ("ok", "poor_fit")), se_vs, np.nan)
+    okm = (geo == "") & ~poor
+    fitm = geo == ""  # 'ok' or 'poor_fit'
+    df["vert_sep_m"] = np.where(fitm, vs, np.nan)
+    df["vert_sep_err_m"] = np.where(fitm, se_vs, np.nan)
     df["throw_m"] = np.where(okm, T, np.nan)
     df["throw_err_m"] = np.where(okm, se_T, np.nan)
     df["heave_m"] = np.where(okm, T / td, np.nan)
-    df["planarity_err_m"] = np.where(np.isin(status, ("ok", "poor_fit")), plan, np.nan)
-    df["surface_slope_deg"] = np.where(np.isin(status, ("ok", "poor_fit")), np.degrees(np.arctan(-b)), np.nan)
+    df["planarity_err_m"] = np.where(fitm, plan, np.nan)
+    df["surface_slope_deg"] = np.where(fitm, np.degrees(np.arctan(-b)), np.nan)
     nm, npl = df["n_minus"].to_numpy(dtype=float), df["n_plus"].to_numpy(dtype=float)
     df["n_fw"] = np.where(s > 0, nm, npl).astype(float)
     df["n_hw"] = np.where(s > 0, npl, nm).astype(float)
     df["scarp_width_m"] = np.where(
         fitted, df["w_minus_m"].to_numpy(float) + df["w_plus_m"].to_numpy(float), np.nan
     )
-    df["fit_rmse_m"] = np.where(np.isin(status, ("ok", "poor_fit")), df["fit_rmse_m"].to_numpy(float), np.nan)
+    df["fit_rmse_m"] = np.where(fitm, df["fit_rmse_m"].to_numpy(float), np.nan)
     df["profile_azimuth_deg"] = (
         np.degrees(np.arctan2(s * df["nx"].to_numpy(float), s * df["ny"].to_numpy(float))) % 360.0
     )
@@ -443,7 +447,8 @@ def measure_throw(
         res["wants_m"] = np.zeros(len(st))
         res["samples"] = np.zeros(len(st))
         raw = pd.concat([raw, _raw_frame(st, sub["fault_id"].to_numpy(), res)], ignore_index=True)
-    raw = raw.sort_values(["fault_id", "dist_m"], kind="stable").reset_index(drop=True)
+    order = np.lexsort((raw["dist_m"].to_numpy(dtype=float), raw["fault_id"].to_numpy()))  # stable
+    raw = raw.take(order).reset_index(drop=True)
     n_samples = int(np.nansum(raw["samples"].to_numpy(dtype=float)))
 
     # --- down-thrown side
