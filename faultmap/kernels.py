@@ -63,17 +63,9 @@ LOSS_CODES = {"none": 0, "tukey": 1, "huber": 2}
 # Bilinear sampling of profiles
 # ---------------------------------------------------------------------------
 @_jit
-def _bilinear_rows(flat, nr, nc, frac_r, frac_c, off_r, off_c, drow, dcol, K, k_max, voids, out):  # pragma: no cover
+def _bilinear_rows(flat, nr, nc, frac_r, frac_c, off_r, off_c, drow, dcol, K, k_max, out):  # pragma: no cover
     one = np.float32(1.0)
     nan = np.float32(np.nan)
-    inf = np.float32(np.inf)
-    check = voids.size > 0
-    v0 = voids[0] if check else nan
-    v1 = voids[1] if check else nan
-    v2 = voids[2] if check else nan
-    v3 = voids[3] if check else nan
-    v4 = voids[4] if check else nan
-    v5 = voids[5] if check else nan
     for r in range(frac_r.size):
         fr0 = frac_r[r]
         fc0 = frac_c[r]
@@ -113,14 +105,6 @@ def _bilinear_rows(flat, nr, nc, frac_r, frac_c, off_r, off_c, drow, dcol, K, k_
             d01 = flat[idx + 1]
             d10 = flat[idx + nc]
             d11 = flat[idx + nc + 1]
-            if check:
-                # voids left in the window (see faultmap.io.dem.read_window_array(keep_voids=True))
-                bad = False
-                for q in (z, d01, d10, d11):
-                    bad |= (abs(q) == inf) | (q == v0) | (q == v1) | (q == v2) | (q == v3) | (q == v4) | (q == v5)
-                if bad:
-                    out[r, j] = nan
-                    continue
             # the reference's order of operations (faultmap.profiles.sample_profiles)
             d11 = d11 - d10
             d10 = d10 - z
@@ -134,7 +118,7 @@ def _bilinear_rows(flat, nr, nc, frac_r, frac_c, off_r, off_c, drow, dcol, K, k_
             out[r, j] = z + d01
 
 
-def bilinear_profiles(flat, nr, nc, frac_r, frac_c, off_r, off_c, drow, dcol, K, k_max, voids=()):
+def bilinear_profiles(flat, nr, nc, frac_r, frac_c, off_r, off_c, drow, dcol, K, k_max):
     """Bilinear samples along many rays from per-ray pixel positions (compiled).
 
     Parameters
@@ -153,10 +137,6 @@ def bilinear_profiles(flat, nr, nc, frac_r, frac_c, off_r, off_c, drow, dcol, K,
         Samples per ray (steps 1..K).
     k_max : ndarray of int64, shape (R,)
         Samples wanted on each ray (the rest are NaN).
-    voids : sequence of float
-        Up to :data:`MAX_VOIDS` void values still present in ``flat``
-        (compared as float32); when given, +-inf are voids too. Empty when
-        the window's voids are already NaN.
 
     Returns
     -------
@@ -165,18 +145,8 @@ def bilinear_profiles(flat, nr, nc, frac_r, frac_c, off_r, off_c, drow, dcol, K,
         window.
     """
     out = np.empty((frac_r.size, int(K)), dtype=_F32)
-    _bilinear_rows(flat, int(nr), int(nc), frac_r, frac_c, off_r, off_c, drow, dcol, int(K), k_max, _void_row(voids), out)
+    _bilinear_rows(flat, int(nr), int(nc), frac_r, frac_c, off_r, off_c, drow, dcol, int(K), k_max, out)
     return out
-
-
-def _void_row(voids) -> np.ndarray:
-    """Void values as a float32 array of :data:`MAX_VOIDS` (NaN-padded); empty when there are none to check."""
-    v = [np.float32(x) for x in voids]
-    if not v:
-        return np.zeros(0, dtype=_F32)
-    if len(v) > MAX_VOIDS:
-        raise ValueError(f"at most {MAX_VOIDS} void values, got {len(v)}")
-    return np.array(v + [np.nan] * (MAX_VOIDS - len(v)), dtype=_F32)
 
 
 # ---------------------------------------------------------------------------

@@ -60,19 +60,7 @@ def chunk_samples(memory_budget_mb: float) -> int:
 
 
 def sample_profiles(
-    arr,
-    transform,
-    x,
-    y,
-    nx,
-    ny,
-    K: int,
-    step: float,
-    *,
-    k_row=None,
-    origin_xy=None,
-    voids=(),
-    use_jit: bool = True,
+    arr, transform, x, y, nx, ny, K: int, step: float, *, k_row=None, origin_xy=None, use_jit: bool = True
 ) -> np.ndarray:
     """Bilinear samples of the DEM along both sides of many profiles.
 
@@ -98,11 +86,6 @@ def sample_profiles(
         fractional pixel positions are taken relative to it, so a sample's
         value does not depend on which window holds it. Default: the
         window's own pixels.
-    voids : sequence of float
-        Void values still present in ``arr`` (at most
-        :data:`faultmap.kernels.MAX_VOIDS`); when given, +-inf are voids
-        too. A sample with a void among its four pixels is NaN, as if the
-        void were NaN. Default none (voids already NaN).
     use_jit : bool
         Use the compiled kernel :func:`faultmap.kernels.bilinear_profiles`
         when numba is available (the same numbers as the array code below,
@@ -166,7 +149,6 @@ def sample_profiles(
             dcol,
             K,
             np.minimum(kr, K).astype(np.int64),
-            voids,
         )
     k = np.arange(1, K + 1, dtype=_F32)
     # fractional coordinates relative to each station's pixel, float32
@@ -214,22 +196,17 @@ def sample_profiles(
     idx += 1
     d11 = flat.take(idx, mode="clip")
     del idx
-    if len(voids):
-        vv = np.asarray(voids, dtype=_F32)
-        for q in (z, d01, d10, d11):
-            out |= np.isinf(q) | np.isin(q, vv)
     # z = z00 + fc (z01 - z00) + fr ((z10 - z00) + fc (z11 - z10 - z01 + z00)), differences first
-    with np.errstate(invalid="ignore", over="ignore"):  # voids and outside samples become NaN below
-        d11 -= d10
-        d10 -= z
-        d01 -= z
-        d11 -= d01
-        d11 *= fc
-        d11 += d10
-        d11 *= fr
-        d01 *= fc
-        d01 += d11
-        z += d01
+    d11 -= d10
+    d10 -= z
+    d01 -= z
+    d11 -= d01
+    d11 *= fc
+    d11 += d10
+    d11 *= fr
+    d01 *= fc
+    d01 += d11
+    z += d01
     if out.any():
         np.copyto(z, _F32(np.nan), where=out)
     if k_row is not None:
@@ -293,7 +270,6 @@ def measure_profiles(
     *,
     raster_box=None,
     chunk_elements: int | None = None,
-    voids=(),
 ) -> dict:
     """Sample and fit the profiles of many stations on one DEM window.
 
@@ -318,8 +294,6 @@ def measure_profiles(
         stations whose profile lengths differ by under 25 % share a matrix.
         Default: a quarter of ``params.memory_budget_mb`` at
         ``BYTES_PER_SAMPLE``, at most ``MAX_CHUNK_SAMPLES``.
-    voids : sequence of float
-        Void values still present in ``arr`` (:func:`sample_profiles`).
 
     Returns
     -------
@@ -393,7 +367,6 @@ def measure_profiles(
             step,
             k_row=K_all[sel],
             origin_xy=origin_xy,
-            voids=voids,
         )
         kr = K_all[sel]
         res = fit_profile_matrix(

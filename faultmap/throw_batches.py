@@ -220,10 +220,10 @@ def _read_for(dem, st: StationSet, H, params):
     bnds = _profile_bounds(st, np.asarray(H, dtype=float))
     if _window_pixels(dem, bnds) > params.memory_budget_mb * 1e6 * 0.4 / 4.0:
         return None
-    arr, wt, _, voids = read_window_array(
-        dem, bnds, pad_pixels=3, cache_mb=int(min(64, max(4, params.memory_budget_mb / 8))), keep_voids=True
+    arr, wt, _ = read_window_array(
+        dem, bnds, pad_pixels=3, cache_mb=int(min(64, max(4, params.memory_budget_mb / 8)))
     )
-    return (arr, wt, bnds, voids)
+    return (arr, wt, bnds)
 
 
 def _measure_on_window(dem, st: StationSet, H, lim_m, lim_p, params, box, window=None):
@@ -249,14 +249,14 @@ def _measure_on_window(dem, st: StationSet, H, lim_m, lim_p, params, box, window
                     res[k][p] = r[k]
             return res
         window = _read_for(dem, st, H, _unbounded(params))
-    arr, wt, _, voids = window
+    arr, wt, _ = window
     if arr.size == 0:
         r = measure_profiles(
             np.full((2, 2), np.nan, dtype=_F32), dem.transform, st, H, lim_m, lim_p, params, raster_box=box
         )
         r["geo_status"][:] = "outside"
         return r
-    return measure_profiles(arr, wt, st, H, lim_m, lim_p, params, raster_box=box, voids=voids)
+    return measure_profiles(arr, wt, st, H, lim_m, lim_p, params, raster_box=box)
 
 
 def _unbounded(params):

@@ -734,16 +734,6 @@ def test_window_reader_voids(tmp_path):
     assert np.isnan(arr2[2, 2]) and np.isnan(arr2[3, 3]) and np.isnan(arr2).sum() == 2
     empty, _, _ = read_window_array(dem2, (1e6, 1e6, 1e6 + 10, 1e6 + 10))
     assert empty.size == 0
-    # keep_voids: a float32 file at z_factor 1 keeps its voids and says which (the sampler treats
-    # them); other files and factors get NaN as before, with no void left to name
-    kept, _, _, vals = read_window_array(dem2, dem2.bounds, pad_pixels=0, keep_voids=True)
-    assert kept[3, 3] == -9999.0 and np.isinf(kept[2, 2]) and -9999.0 in vals
-    assert not np.isnan(kept).any()
-    arr3, _, _, vals3 = read_window_array(dem, (0, 0, 300, 200), pad_pixels=0, keep_voids=True)
-    assert vals3 == () and np.isnan(arr3[5, 7]) and np.isnan(arr3).sum() == 1
-    dem3 = open_dem(write_tif(tmp_path / "f.tif", f, nodata=-9999.0), z_factor=0.3048)
-    arr4, _, _, vals4 = read_window_array(dem3, dem3.bounds, pad_pixels=0, keep_voids=True)
-    assert vals4 == () and np.isnan(arr4[2, 2]) and np.isnan(arr4[3, 3]) and arr4[0, 0] == np.float32(0.3048)
 
 
 def test_no_measurable_station_still_completes(tmp_path):

@@ -313,7 +313,6 @@ def read_window_array(
     pad_pixels: int = 2,
     dtype="float32",
     cache_mb: int = 64,
-    keep_voids: bool = False,
 ):
     """Read the elevations covering ``bounds`` as a compact array.
 
@@ -335,12 +334,6 @@ def read_window_array(
         Output float type.
     cache_mb : int
         GDAL block cache for this read, MB.
-    keep_voids : bool
-        The caller treats void values itself (as
-        :func:`faultmap.profiles.sample_profiles` does): where the file is
-        float32 with no mask and ``z_factor`` is 1, the voids are left as
-        they are, which saves a pass over the whole window, and returned as
-        a fourth item.
 
     Returns
     -------
@@ -351,9 +344,6 @@ def read_window_array(
         Pixel-corner transform of the window.
     offset : tuple of int
         (row0, col0) of the window in the full raster.
-    voids : tuple of float
-        Only with ``keep_voids``: the void values left in ``array`` (where
-        one is given, +-inf are voids too); empty when they are NaN.
     """
     import rasterio
     from rasterio.enums import MaskFlags
@@ -362,8 +352,7 @@ def read_window_array(
 
     win = dem.window_for_bounds(bounds, pad_pixels)
     if win is None:
-        out = np.empty((0, 0), dtype=dtype), dem.transform, (0, 0)
-        return (*out, ()) if keep_voids else out
+        return np.empty((0, 0), dtype=dtype), dem.transform, (0, 0)
     rows, cols = win
     w = Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
     try:
@@ -392,17 +381,11 @@ def read_window_array(
         and kernels.ENABLED
         and len(set(voids)) <= kernels.MAX_VOIDS
     ):
-        # the common case (a float32 GeoTIFF)
-        vals = sorted({float(np.float32(v)) for v in voids})
-        if keep_voids and dem.z_factor == 1.0:
-            # the caller's sampler treats the voids: no pass over the window here
-            return raw, win_transform(w, dem.transform), (rows.start, cols.start), tuple(vals)
-        # voids and +-inf to NaN in one compiled pass
-        kernels.voids_to_nan(raw, vals)
+        # the common case (a float32 GeoTIFF): voids and +-inf to NaN in one compiled pass
+        kernels.voids_to_nan(raw, sorted(set(voids)))
         if dem.z_factor != 1.0:
             raw *= np.float32(dem.z_factor)
-        out = raw, win_transform(w, dem.transform), (rows.start, cols.start)
-        return (*out, ()) if keep_voids else out
+        return raw, win_transform(w, dem.transform), (rows.start, cols.start)
     bad = mask
     tmp = None
     for v in sorted(set(voids)):
@@ -430,8 +413,7 @@ def read_window_array(
         np.putmask(arr, bad, np.nan)
     if dem.z_factor != 1.0:
         arr *= arr.dtype.type(dem.z_factor)
-    out = arr, win_transform(w, dem.transform), (rows.start, cols.start)
-    return (*out, ()) if keep_voids else out
+    return arr, win_transform(w, dem.transform), (rows.start, cols.start)
 
 
 def read_overview(dem: Dem, *, max_pixels: int = 2_000_000, bounds=None):
