@@ -20,6 +20,10 @@ machine may be shared; the load average is printed). The throw step's sample
 count includes the first, shorter profiles of stations measured again with
 longer ones; the raw gather samples the final profiles only.
 
+An instrumented single-threaded run then says where the step's time goes
+(reading the DEM windows, sampling, fits, smoothing, the rest), against the
+time the "half the raw gather" target allows.
+
 It also runs the throw step in a subprocess with ``memory_budget_mb`` set
 below the DEM's size and reports its peak memory (ru_maxrss and the
 tracemalloc peak of numpy/Python allocations).
@@ -183,6 +187,55 @@ def naive_loop(tif, stations, step, n_stations, scarp_halfwidth_m):
     return n_samples, time.perf_counter() - t0
 
 
+def breakdown(faults, dem):
+    """Where a single-threaded throw step spends its time: seconds per part (one instrumented run).
+
+    Wraps the step's building blocks with timers: reading the DEM windows
+    (``faultmap.io.dem.read_window_array``), bilinear sampling
+    (``faultmap.profiles.sample_profiles``), the profile fits
+    (``faultmap.profiles.fit_profile_matrix``) and the along-strike smoothing
+    (``faultmap.along_strike._smooth_chunk``); the rest (stations, crossings,
+    per-station results, gathering, side, summaries, station points) is the
+    whole step minus these.
+    """
+    import faultmap.along_strike as along
+    import faultmap.io.dem as dem_io
+    import faultmap.profiles as profiles
+    from faultmap.throw import measure_throw
+
+    spent = {"read": 0.0, "sample": 0.0, "fit": 0.0, "smooth": 0.0}
+    patches = [
+        (dem_io, "read_window_array", "read"),
+        (profiles, "sample_profiles", "sample"),
+        (profiles, "fit_profile_matrix", "fit"),
+        (along, "_smooth_chunk", "smooth"),
+    ]
+    saved = [(mod, name, getattr(mod, name)) for mod, name, _ in patches]
+
+    def timed(fn, key):
+        def run(*args, **kw):
+            t0 = time.perf_counter()
+            try:
+                return fn(*args, **kw)
+            finally:
+                spent[key] += time.perf_counter() - t0
+
+        return run
+
+    for (mod, name, key), (_, _, fn) in zip(patches, saved, strict=True):
+        setattr(mod, name, timed(fn, key))
+    try:
+        t0 = time.perf_counter()
+        measure_throw(faults, dem)
+        total = time.perf_counter() - t0
+    finally:
+        for mod, name, fn in saved:
+            setattr(mod, name, fn)
+    spent["rest"] = total - sum(spent.values())
+    spent["total"] = total
+    return spent
+
+
 def _vm_hwm_kb():
     """Peak resident set size of this process (VmHWM, reset at exec, unlike ru_maxrss on Linux)."""
     try:
@@ -322,6 +375,21 @@ def main(argv=None):
         print(f"ratio faultmap / read + raw gather:      {rate / raw_read:8.2f}")
         print(f"ratio faultmap default engine ({nthr} threads) / raw gather: {rate2 / raw:8.2f}")
         print(f"ratio faultmap default engine / read + raw gather:  {rate2 / raw_read:8.2f}")
+
+        # what the "half the raw gather" target leaves for the whole step, against what reading the
+        # DEM windows and sampling them take alone (an instrumented single-threaded run)
+        parts = breakdown(faults, dem)
+        allowed = 2.0 * t_gather * n_samp / px.size
+        print("")
+        print(
+            f"single-threaded step, instrumented ({parts['total']:.2f} s): "
+            + ", ".join(f"{k} {parts[k]:.2f} s" for k in ("read", "sample", "fit", "smooth", "rest"))
+        )
+        print(
+            f"  half the in-memory raw gather's throughput allows {allowed:.2f} s for the whole step; reading the "
+            f"DEM windows and sampling them alone take {parts['read'] + parts['sample']:.2f} s "
+            f"({(parts['read'] + parts['sample']) / allowed:.0%} of it)"
+        )
 
         dem_mb = dem.width * dem.height * 4 / 1e6
         budget = max(16.0, round(dem_mb / 4))
