@@ -18,6 +18,8 @@ import numpy as np
 import pandas as pd
 import shapely
 
+from faultmap import kernels
+
 __all__ = ["SMOOTHING_CANDIDATES", "summarise_faults"]
 
 
@@ -281,7 +283,7 @@ def _smooth_profiles(group, T, se, sigma, *, chunk: int = 8192, mapper=None):
     return (*out, np.concatenate([p[4] for p in parts], axis=0))
 
 
-def _smooth_chunk(group, T, se, sigma, *, floor=None):
+def _smooth_chunk(group, T, se, sigma, *, floor=None, use_jit: bool = True):
     """Robust local-regression smoothing of equally spaced station values within groups.
 
     Parameters
@@ -294,6 +296,12 @@ def _smooth_chunk(group, T, se, sigma, *, floor=None):
         Gaussian kernel sigma in stations; ``None`` chooses it per fault
         among :data:`SMOOTHING_CANDIDATES` by leave-one-out cross-validation;
         0 returns the stations as they are.
+    floor : float, optional
+        Smallest station error used (default a tenth of the median error).
+    use_jit : bool
+        Use the compiled kernels (:func:`faultmap.kernels.hampel_flags`,
+        :func:`faultmap.kernels.smooth_stations`) when numba is available;
+        ``False`` runs the array code below (the same results to rounding).
 
     Returns
     -------
@@ -320,7 +328,8 @@ def _smooth_chunk(group, T, se, sigma, *, floor=None):
     station error, inflated by the local reduced chi-square where stations
     scatter more than their errors say.
     """
-    outlier = _hampel(group, T, se)
+    jit = use_jit and kernels.ENABLED
+    outlier = kernels.hampel_flags(group, T, se) if jit else _hampel(group, T, se)
     Tc = np.where(outlier, np.nan, T)
     # an error of exactly zero (a noise-free plane) is usable: it takes the error floor
     sec = np.where(np.isfinite(se) & (se >= 0), se, np.nan)
@@ -332,11 +341,24 @@ def _smooth_chunk(group, T, se, sigma, *, floor=None):
         coef = np.c_[Tc, np.zeros(T.size), np.zeros(T.size)]
         return Tc, np.where(np.isfinite(Tc), sec, np.nan), outlier, np.zeros(T.size), coef
     if sigma is not None:
-        Ts, se_s, coef = _local_fit(group, Tc, sec, float(sigma))
+        if jit:
+            J = max(2, int(math.ceil(3.0 * float(sigma))))
+            Kf = _kernels(np.arange(-J, J + 1, dtype=float), [float(sigma)], [-1])
+            Ts, se_s, _, coef = kernels.smooth_stations(group, Tc, sec, None, Kf, 0, 0.0)
+        else:
+            Ts, se_s, coef = _local_fit(group, Tc, sec, float(sigma))
         return Ts, se_s, outlier, np.full(T.size, float(sigma)), coef
     g0 = int(group.min()) if group.size else 0
     group = group - g0  # chunks carry global fault indices
     n_g = int(group.max()) + 1 if group.size else 0
+    if jit:
+        J = max(2, int(math.ceil(3.0 * max(SMOOTHING_CANDIDATES))))
+        x = np.arange(-J, J + 1, dtype=float)
+        m = len(SMOOTHING_CANDIDATES)
+        Kcv = _kernels(x, list(SMOOTHING_CANDIDATES), [_CV_BLOCK] * m)
+        Kf = _kernels(x, list(SMOOTHING_CANDIDATES), [-1] * m)
+        Ts, se_s, pick, coef = kernels.smooth_stations(group, Tc, sec, Kcv, Kf, n_g, _CV_SE)
+        return Ts, se_s, outlier, np.asarray(SMOOTHING_CANDIDATES)[pick], coef
     nb = _neighbourhood(group, Tc, sec, max(2, int(math.ceil(3.0 * max(SMOOTHING_CANDIDATES)))))
     m = len(SMOOTHING_CANDIDATES)
     # every candidate width predicts each station from the others beyond its neighbours, in one set of
