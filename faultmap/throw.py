@@ -144,16 +144,18 @@ def infer_downthrown_side(fault_id, vs_plus, ok, err=None) -> pd.DataFrame:
         floor = np.nanmedian(e[use]) * 0.1 if use.any() and np.isfinite(e[use]).any() else 1e-3
         e = np.maximum(np.where(np.isfinite(e), e, np.inf), max(floor, 1e-6))
         w = np.where(use, 1.0 / e**2, 0.0)
-    df = pd.DataFrame({"fault_id": fid, "v": v, "wv": np.nan_to_num(v) * w})
-    g = df.groupby("fault_id")
-    total = g["wv"].sum()
-    n = g["v"].count()
-    sign = pd.Series(np.sign(total.to_numpy()).astype(int), index=total.index)
-    agree = df.assign(s=np.sign(df["v"]), t=df["fault_id"].map(sign)).query("v == v")
-    frac = (agree["s"] == agree["t"]).groupby(agree["fault_id"]).mean()
-    out = pd.DataFrame({"down_sign": sign, "confidence": frac.reindex(sign.index).fillna(0.0), "n": n})
-    out.loc[out["n"] == 0, "down_sign"] = 0
-    return out
+    ids, g = np.unique(fid, return_inverse=True)
+    g = g.ravel()
+    k = ids.size
+    total = np.bincount(g, np.nan_to_num(v) * w, minlength=k)
+    has = ~np.isnan(v)
+    n = np.bincount(g[has], minlength=k)
+    sign = np.sign(total).astype(int)
+    agree = np.bincount(g[has], (np.sign(v[has]) == sign[g[has]]).astype(float), minlength=k)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        frac = np.where(n > 0, agree / n, 0.0)
+    sign[n == 0] = 0
+    return pd.DataFrame({"down_sign": sign, "confidence": frac, "n": n}, index=pd.Index(ids, name="fault_id"))
 
 
 def finalise_stations(raw: pd.DataFrame, faults: pd.DataFrame, hw_sign) -> pd.DataFrame:

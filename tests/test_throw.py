@@ -781,6 +781,32 @@ def test_profile_smoothing_recovers_shapes_and_is_chunk_invariant():
         assert np.allclose(x, y, equal_nan=True)
 
 
+def test_downthrown_side_is_the_weighted_sign_and_confidence_the_agreeing_fraction():
+    # the definition (docstring of infer_downthrown_side; common practice), computed fault by fault in
+    # plain Python: the side is the sign of the inverse-variance weighted mean separation, so a few
+    # stations with large errors cannot outvote the rest; confidence = fraction of usable stations agreeing
+    from faultmap.throw import infer_downthrown_side
+
+    fid = np.array([5, 5, 5, 5, 9, 9, 9, 2, 2, 4])
+    vs = np.array([1.0, 1.2, -30.0, np.nan, -2.0, -2.5, 3.0, 0.5, 0.7, 1.0])
+    ok = np.array([True, True, True, True, True, True, True, True, True, False])
+    err = np.array([0.2, 0.2, 50.0, 0.2, 0.3, 0.3, 0.3, 0.1, 0.1, 0.1])
+    out = infer_downthrown_side(fid, vs, ok, err)
+    assert list(out.index) == [2, 4, 5, 9]
+    floor = 0.1 * np.median(err[ok & np.isfinite(vs)])
+    for f in (2, 5, 9):
+        m = (fid == f) & ok & np.isfinite(vs)
+        w = 1.0 / np.maximum(err[m], floor) ** 2
+        sign = int(np.sign(np.sum(w * vs[m])))
+        assert out.loc[f, "down_sign"] == sign
+        assert out.loc[f, "n"] == m.sum()
+        assert out.loc[f, "confidence"] == pytest.approx(np.mean(np.sign(vs[m]) == sign))
+    # fault 5: the -30 m station (error 50 m) is outvoted; 2 of 3 stations agree
+    assert out.loc[5, "down_sign"] == 1 and out.loc[5, "confidence"] == pytest.approx(2 / 3)
+    # fault 4 has no usable station: side unknown
+    assert out.loc[4, "down_sign"] == 0 and out.loc[4, "n"] == 0 and out.loc[4, "confidence"] == 0.0
+
+
 def test_grouped_integral_matches_numpy_trapezoid_in_any_order():
     # reference library: numpy.trapezoid of each group's profile, closed by zero at 0 and at L (the
     # tips); stations given in (group, distance) order take a path without sorting, any other order the
