@@ -8,6 +8,8 @@ cannot be imported or ``FAULTMAP_NO_JIT=1`` is set):
   profiles: :func:`faultmap.profiles.sample_profiles`.
 * :func:`robust_windows` fits robust lines to a window of samples of many
   profile rows: :func:`faultmap.robust_lines._fit_windows`.
+* :func:`profile_gradients` smooths each profile's gradient and finds its
+  background slope: :func:`faultmap.scarp_fit._profile_gradients`.
 * :func:`scarp_edges` finds where each side's scarp ends:
   :func:`faultmap.scarp_fit._scarp_edges`.
 * :func:`box_pairs` finds the profiles and trace segments whose boxes
@@ -18,7 +20,7 @@ cannot be imported or ``FAULTMAP_NO_JIT=1`` is set):
 * :func:`hampel_flags` and :func:`smooth_stations` smooth the along-strike
   throw profiles: :func:`faultmap.along_strike._smooth_chunk`.
 
-The first five repeat the reference's float32 arithmetic operation by
+The first six repeat the reference's float32 arithmetic operation by
 operation and accumulate every sum sample by sample in the same order, so
 they return the same numbers (``tests/test_kernels.py`` compares them). The
 smoothing kernel sums station by station where its reference uses matrix
@@ -43,6 +45,7 @@ __all__ = [
     "ENABLED",
     "bilinear_profiles",
     "robust_windows",
+    "profile_gradients",
     "scarp_edges",
     "box_pairs",
     "voids_to_nan",
@@ -585,6 +588,51 @@ def _edges(g, bg, zf, scale, up, lim, rows, n, m_run, grad_frac, found, first): 
                         found[k] = True
                         first[k] = float(j0 + 1)
                     break
+
+
+@_jit
+def _gradients(Zc, lim, kr, g, bg, buf):  # pragma: no cover
+    R2, K = Zc.shape
+    nan = np.float32(np.nan)
+    q = np.float32(0.25)
+    h = np.float32(0.5)
+    for r in range(R2):
+        g[r, 0] = nan
+        g[r, K - 1] = nan
+        for j in range(2, K - 2):
+            g[r, j] = (Zc[r, j + 2] - Zc[r, j - 2]) * q
+        g[r, 1] = (Zc[r, 2] - Zc[r, 0]) * h
+        g[r, K - 2] = (Zc[r, K - 1] - Zc[r, K - 3]) * h
+        k = kr[r]
+        if k < K and k >= 3:
+            # a row shorter than the matrix ends as if the matrix ended there
+            g[r, k - 2] = (Zc[r, k - 1] - Zc[r, k - 3]) * h
+        # background slope: median of every second gradient within the usable part of the row
+        c = 0
+        for j in range(1, K, 2):
+            v = g[r, j]
+            if np.isfinite(v) and np.float64(j + 1) <= lim[r]:
+                buf[c] = v
+                c += 1
+        if c == 0:
+            bg[r] = np.float32(0.0)
+            continue
+        _sort_small(buf, c)
+        med = 0.5 * (np.float64(buf[(c - 1) // 2]) + np.float64(buf[c // 2]))
+        bg[r] = np.float32(med) if np.isfinite(med) else np.float32(0.0)
+
+
+def profile_gradients(Zc, lim, row_samples=None):
+    """Compile :func:`faultmap.scarp_fit._profile_gradients`: gradients ``g`` and background slopes ``bg``."""
+    R2, K = Zc.shape
+    kr = np.full(R2, K, dtype=np.int64) if row_samples is None else np.ascontiguousarray(row_samples, dtype=np.int64)
+    g = np.empty((R2, K), dtype=_F32)
+    bg = np.empty(R2, dtype=_F32)
+    _gradients(
+        np.ascontiguousarray(Zc, dtype=_F32), np.ascontiguousarray(lim, dtype=float), kr, g, bg,
+        np.empty(max(K // 2 + 1, 1), dtype=_F32),
+    )
+    return g, bg
 
 
 def scarp_edges(g, bg, z_first, scale, up, lim, rows, n, m_run, grad_frac=0.25):

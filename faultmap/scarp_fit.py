@@ -223,7 +223,7 @@ def fit_profile_matrix(
         matrix of its own length. Default ``k`` for all.
     use_jit : bool
         Use the compiled kernels of :mod:`faultmap.kernels` (when numba is
-        available) for the robust fits and the scarp edges; ``False`` runs
+        available) for the gradients, the robust fits and the scarp edges; ``False`` runs
         the array code they repeat (the same numbers).
 
     Returns
@@ -273,7 +273,12 @@ def fit_profile_matrix(
     m_run = 3
     edge_found = np.ones(R2, dtype=bool)
     n_it = int(scarp_iterations)
-    grads = _profile_gradients(Zc, lim, row_samples) if (n_it > 0 and K >= 10) else None
+    grads = None
+    if n_it > 0 and K >= 10:
+        if use_jit and kernels.ENABLED:
+            grads = (*kernels.profile_gradients(Zc, lim, row_samples), Zc[:, 0])
+        else:
+            grads = _profile_gradients(Zc, lim, row_samples)
     del Zc
     fitkw = dict(loss=loss, tuning=tuning)
     all_rows = np.arange(R2)

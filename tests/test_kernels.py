@@ -180,6 +180,26 @@ def test_voids_to_nan_matches_the_array_rule():
     assert _same(a, ref)
 
 
+@pytest.mark.parametrize("short_rows", [False, True])
+def test_profile_gradients_kernel_matches_array_code(short_rows):
+    from faultmap.scarp_fit import _profile_gradients
+
+    rng = np.random.default_rng(21)
+    R2, K = 900, 47
+    Zc = np.cumsum(rng.normal(0.0, 0.4, (R2, K)), axis=1).astype("float32")
+    Zc[rng.random(Zc.shape) < 0.05] = np.nan
+    Zc[:30] = np.nan  # rows with no usable gradient: background 0
+    lim = rng.uniform(3.0, K + 4.0, R2)
+    rs = None
+    if short_rows:
+        rs = rng.integers(2, K + 1, R2)
+        Zc[np.arange(K)[None, :] >= rs[:, None]] = np.nan
+    g_ref, bg_ref, z_ref = _profile_gradients(Zc, lim, rs)
+    g, bg = kernels.profile_gradients(Zc, lim, rs)
+    assert _same(g, g_ref) and _same(bg, bg_ref)
+    assert (bg_ref[:30] == 0).all() and np.count_nonzero(bg_ref) > R2 // 2
+
+
 def test_whole_profile_fit_same_with_and_without_kernels():
     # the full fit of scarp profiles (coarse lines, scarp edges, far-field fits, refits) with every kernel
     # against the array code alone: the same numbers bit for bit. Profiles: a scarp of random height and
