@@ -190,7 +190,7 @@ def finalise_stations(raw: pd.DataFrame, faults: pd.DataFrame, hw_sign) -> pd.Da
     our own estimate of how far a non-planar surface (relief, rollover) may
     shift the projected levels (zero for a planar surface).
     """
-    df = raw.copy()
+    df = raw.copy(deep=False)  # new columns only: the caller's frame is never written (tested)
     fid = df["fault_id"].to_numpy()
     at = pd.Index(faults["fault_id"].to_numpy()).get_indexer(fid)
     dip = np.where(at >= 0, faults["dip_deg"].to_numpy(dtype=float)[at], np.nan)
@@ -544,7 +544,7 @@ def measure_throw(
     lz = linkage_zones(f, st, step_m=params.station_spacing_m)
     geom = gpd.points_from_xy(st["x"], st["y"], crs=f.crs)
     st["profile_half_length_m"] = st["half_length_m"]
-    stations = gpd.GeoDataFrame(st[list(STATION_COLUMNS)].copy(), geometry=geom, crs=f.crs)
+    stations = gpd.GeoDataFrame(st[list(STATION_COLUMNS)], geometry=geom, crs=f.crs)
     return ThrowResult(
         faults=f, stations=stations, linkage_zones=lz, warnings=warns, params=params, n_samples=n_samples,
         n_batches=len(batches),

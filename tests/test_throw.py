@@ -108,6 +108,40 @@ def test_caskey_check_values():
         assert throw_from_separation(vs, dip_deg=60.0, surface_slope_deg=th) == pytest.approx(10.0, rel=1e-12)
 
 
+def test_finalise_applies_caskey_on_the_hanging_wall_side_and_leaves_its_input():
+    # Caskey (1995) check values (shared/methods.md): T 10 m, dip 60, surface 10 deg descending towards
+    # the hanging wall -> VS 8.9820 m; the other way -> 11.0180 m. Raw separations are measured + side
+    # down (slope_plus = dz/du towards the + side); a fault whose - side is the hanging wall flips both.
+    import pandas as pd
+
+    from faultmap.profiles import RAW_COLUMNS
+    from faultmap.throw import finalise_stations
+
+    n = 4
+    raw = pd.DataFrame({"fault_id": [1, 1, 2, 2], "dist_m": [0.0, 10.0, 0.0, 10.0], "x": 0.0, "y": 0.0,
+                        "nx": 1.0, "ny": 0.0})
+    for k in RAW_COLUMNS:
+        raw[k] = np.zeros(n)
+    raw["geo_status"] = np.array(["", "", "", "nodata"], dtype=object)
+    raw["poor"] = False
+    t10 = np.tan(np.radians(10.0))
+    # fault 1 (+ side down): surfaces descending towards + at 10 deg, then rising towards + at 10 deg
+    raw.loc[0, ["vs_plus_m", "slope_plus"]] = [8.9820, -t10]
+    raw.loc[1, ["vs_plus_m", "slope_plus"]] = [11.0180, t10]
+    # fault 2 (- side down): the same first case seen from the other side
+    raw.loc[2, ["vs_plus_m", "slope_plus"]] = [-8.9820, t10]
+    raw.loc[3, ["vs_plus_m", "slope_plus"]] = [-8.9820, t10]
+    before = raw.copy(deep=True)
+    faults = pd.DataFrame({"fault_id": [1, 2], "dip_deg": [60.0, 60.0]})
+    out = finalise_stations(raw, faults, {1: 1.0, 2: -1.0})
+    assert out["throw_m"].to_numpy()[:3] == pytest.approx([10.0, 10.0, 10.0], abs=1e-3)
+    assert out["heave_m"].to_numpy()[:3] == pytest.approx(10.0 / np.tan(np.radians(60.0)), abs=1e-3)
+    assert out["surface_slope_deg"].to_numpy()[:3] == pytest.approx([10.0, -10.0, 10.0], abs=1e-9)
+    assert list(out["status"]) == ["ok", "ok", "ok", "nodata"] and np.isnan(out["throw_m"].iloc[3])
+    assert out["profile_azimuth_deg"].to_numpy() == pytest.approx([90.0, 90.0, 270.0, 270.0])
+    pd.testing.assert_frame_equal(raw, before)  # the input is never modified
+
+
 # ---------------------------------------------------------------------------
 # Robust line fits (analytic)
 # ---------------------------------------------------------------------------
