@@ -14,7 +14,7 @@ run, in profile samples per second:
    ``scipy.ndimage.map_coordinates`` on the DEM already in memory (the
    practical ceiling), and the same preceded by reading the whole DEM.
 
-Timings are the best of three rounds, each timing the step (both ways) and the raw gather in
+Timings are the best of five rounds, each timing the step (both ways) and the raw gather in
 turn, so that a drift of the machine's speed during the run does not favour one of them (the
 machine may be shared; the load average is printed). The throw step's sample
 count includes the first, shorter profiles of stations measured again with
@@ -51,6 +51,8 @@ import numpy as np
 
 CRS = "EPSG:32633"
 PIXEL_M = 10.0
+#: Rounds of the timed runs (each times the step both ways and the raw gather; the best of each counts).
+ROUNDS = 5
 
 
 def build_scene(folder: Path, n_pixels: int, n_faults: int, seed: int = 3):
@@ -327,7 +329,7 @@ def main(argv=None):
         # the three are timed in turn, round after round (best of each), so a drift of the machine's speed
         # during the run does not favour one of them
         best = dt2 = t_read = t_gather = math.inf
-        for _ in range(3):
+        for _ in range(ROUNDS):
             t0 = time.perf_counter()
             res = measure_throw(faults, dem)
             best = min(best, time.perf_counter() - t0)
