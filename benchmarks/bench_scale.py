@@ -125,8 +125,15 @@ def main(argv=None):
     ap.add_argument("--spacing-px", type=float, default=3.0, help="throw station spacing in pixels (default 3)")
     a = ap.parse_args(argv)
 
+    import warnings
+
     import geopandas as gpd
     from bench_throw import PIXEL_M, build_scene
+
+    from faultmap.errors import FaultmapWarning
+
+    # the same notice (faults of the synthetic scene with no throw) would print once per timed run
+    warnings.filterwarnings("once", category=FaultmapWarning)
 
     from faultmap.engine import make_engine
     from faultmap.io.dem import open_dem
