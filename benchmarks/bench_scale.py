@@ -121,7 +121,7 @@ def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--small", action="store_true", help="3000 x 3000 pixels, 300 faults (quick check)")
     ap.add_argument("--budget-mb", type=float, help="memory_budget_mb of the throw step")
-    ap.add_argument("--repeat", type=int, default=3, help="timed rounds over the engines (best is kept)")
+    ap.add_argument("--repeat", type=int, default=5, help="timed rounds over the engines (best is kept)")
     ap.add_argument("--spacing-px", type=float, default=3.0, help="throw station spacing in pixels (default 3)")
     a = ap.parse_args(argv)
 
