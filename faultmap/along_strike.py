@@ -566,9 +566,15 @@ def summarise_faults(
     # noise of a smoothed end point cannot make the maximum
     cap = np.minimum(Ts, T + 2.0 * se)
     key = np.where(np.isfinite(cap) & ok & ~outl, cap, -np.inf)
-    o = np.lexsort((key, g))
-    last = np.r_[g[o][1:] != g[o][:-1], True] if o.size else np.zeros(0, dtype=bool)
-    best = o[last]
+    # per fault (stations contiguous), the last station holding the largest key
+    if g.size:
+        starts = np.flatnonzero(np.r_[True, g[1:] != g[:-1]])
+        top = np.maximum.reduceat(key, starts)
+        runs = np.diff(np.r_[starts, g.size])
+        at_top = key == np.repeat(top, runs)
+        best = np.maximum.reduceat(np.where(at_top, np.arange(g.size), -1), starts)
+    else:
+        best = np.zeros(0, dtype=np.int64)
     mx = np.full(nF, np.nan)
     mx_err = np.full(nF, np.nan)
     mx_d = np.full(nF, np.nan)

@@ -411,7 +411,9 @@ def measure_throw(
         warns.append(
             f"{int((~over).sum())} fault(s) lie wholly outside the DEM (fault ids {_ids(ids)}); their stations are 'outside'."
         )
-    partly = over & ~shapely.within(lines, dem_box)
+    b = shapely.bounds(lines)  # within the (axis-aligned) DEM box <=> bounds inside it
+    xmin, ymin, xmax, ymax = dem.bounds
+    partly = over & ~((b[:, 0] >= xmin) & (b[:, 1] >= ymin) & (b[:, 2] <= xmax) & (b[:, 3] <= ymax))
     if partly.any():
         warns.append(
             f"{int(partly.sum())} fault(s) run off the DEM edge (fault ids {_ids(f['fault_id'].to_numpy()[partly])}); stations beyond it are 'outside'."
