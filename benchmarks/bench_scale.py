@@ -205,6 +205,7 @@ def main(argv=None):
         t_in, tb_in, ts_in = best[("throw", 0)], best[("batches", 0)], best[("strain", 0)]
         t_ref = {1: best[("reference", 1)], 2: best[("reference", 2)]}
 
+        print(f"throw: {len(ref.stations)} stations, {ref.n_samples:,} profile samples")
         print(f"strain: {len(cells_ref)} cells of {cell_m:g} m in {n_tiles} tiles of 64 x 64 cells")
         print("")
         print(
