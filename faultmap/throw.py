@@ -212,10 +212,12 @@ def finalise_stations(raw: pd.DataFrame, faults: pd.DataFrame, hw_sign) -> pd.Da
         se_T = np.sqrt((se_vs / f) ** 2 + (vs * se_b / (f * f * td)) ** 2 + (plan / f) ** 2)
     geo = df["geo_status"].to_numpy(dtype=object)
     poor = df["poor"].to_numpy(dtype=bool) | ~(f >= 0.25) | ~np.isfinite(T)
-    status = np.where(geo != "", geo, np.where(poor, "poor_fit", "ok"))
-    fitted = (geo == "") | (geo == "truncated")
-    okm = (geo == "") & ~poor
     fitm = geo == ""  # 'ok' or 'poor_fit'
+    okm = fitm & ~poor
+    status = geo.copy()
+    status[okm] = "ok"
+    status[fitm & poor] = "poor_fit"
+    fitted = fitm | (geo == "truncated")
     df["vert_sep_m"] = np.where(fitm, vs, np.nan)
     df["vert_sep_err_m"] = np.where(fitm, se_vs, np.nan)
     df["throw_m"] = np.where(okm, T, np.nan)
