@@ -451,60 +451,101 @@ def _groups(L):
     return out
 
 
-def _fit_group(Z0, valid, rows, s, L, ia, ib, has_init, code, tuning, n_it, cap, tol, autocorr, floor, out, sel):
+@_jit
+def _group_begin(Z0, valid, rows, s, L, ia, ib, has_init, w):  # pragma: no cover
+    """Load a group's windows, count their samples and fit ordinary least-squares lines (warm start applied)."""
     g = rows.size
-    w = max(int(L.max()), 2)
-    ZT = np.empty((w, g), dtype=_F32)
-    MT = np.empty((w, g), dtype=_F32)
+    ZT = np.empty((w, g), dtype=np.float32)
+    MT = np.empty((w, g), dtype=np.float32)
     base_a = np.empty(g)
     base_b = np.empty(g)
     cnt = np.empty(g, dtype=np.int64)
     _load(Z0, valid, rows, s, L, ia, ib, has_init, ZT, MT, base_a, base_b, cnt)
-    all_rows = np.arange(g)
-    S = np.empty((5, g), dtype=_F32)
+    S = np.empty((5, g), dtype=np.float32)
     _weighted_sums(ZT, MT, S)
-    n = np.rint(S[0].astype(float))
+    n = np.empty(g)
+    span = np.empty(g)
     a = np.full(g, np.nan)
     b = np.full(g, np.nan)
     m1 = np.empty(g)
     m2 = np.empty(g)
-    span = np.maximum(L, 1).astype(float)
+    for i in range(g):
+        n[i] = np.rint(np.float64(S[0, i]))
+        span[i] = np.float64(max(L[i], 1))
     _update(S, a, b, span, m1, m2)  # ordinary least squares
     if has_init:
-        good = np.isfinite(ia) & np.isfinite(ib)
-        a[good] = 0.0  # the samples are relative to the starting line
-        b[good] = 0.0
-    scale = np.full(g, np.nan)
-    F = np.empty((3, g), dtype=_F32)
+        for i in range(g):
+            if np.isfinite(ia[i]) and np.isfinite(ib[i]):
+                a[i] = 0.0  # the samples are relative to the starting line
+                b[i] = 0.0
+    return ZT, MT, base_a, base_b, cnt, S, n, span, a, b, m1, m2
+
+
+@_jit
+def _scale_pass(ZT, MT, A, cnt, floor, tuning, code, a, b, WT, S, span, m1, m2, scale, inv):  # pragma: no cover
+    """From each row's sorted |residuals| (A): the normalised MAD scale, then one reweighting pass."""
+    for i in range(cnt.size):
+        k = max((cnt[i] - 1) // 2, 0)
+        med = np.float64(A[i, k]) if cnt[i] > 0 else 0.0
+        x = 1.4826 * med
+        sc = x if (x != x or x >= floor) else floor  # numpy.maximum: NaN wins
+        scale[i] = sc
+        inv[i] = np.float32(1.0 / (tuning * sc))
+    _reweight(ZT, MT, a, b, inv, code, WT, S)
+    _update(S, a, b, span, m1, m2)
+
+
+@_jit
+def _group_end(ZT, MT, WT, a, b, inv, code, span, m1, m2, S, n_it, cap, tol, scale, autocorr):  # pragma: no cover
+    """Rows whose line still moves converge at their held scale; the residual sums of every row."""
+    g = a.size
+    c = 0
+    for i in range(g):
+        mm = np.nan if (m1[i] != m1[i] or m2[i] != m2[i]) else max(m1[i], m2[i])
+        if mm >= tol * scale[i]:
+            c += 1
+    if c and n_it < cap:
+        act = np.empty(c, dtype=np.int64)
+        c = 0
+        for i in range(g):
+            mm = np.nan if (m1[i] != m1[i] or m2[i] != m2[i]) else max(m1[i], m2[i])
+            if mm >= tol * scale[i]:
+                act[c] = i
+                c += 1
+        _converge(ZT, MT, WT, act, a, b, inv, code, span, m1, m2, S, n_it, cap, tol, scale)
+    F = np.empty((3, g), dtype=np.float32)
+    _finish_sums(ZT, WT, a, b, autocorr, F)
+    return F
+
+
+def _fit_group(Z0, valid, rows, s, L, ia, ib, has_init, code, tuning, n_it, cap, tol, autocorr, floor, out, sel):
+    g = rows.size
+    w = max(int(L.max()), 2)
+    ZT, MT, base_a, base_b, cnt, S, n, span, a, b, m1, m2 = _group_begin(Z0, valid, rows, s, L, ia, ib, has_init, w)
+    off = s.astype(float)
     if code == 0 or n_it <= 0:
+        scale = np.full(g, np.nan)
+        F = np.empty((3, g), dtype=_F32)
         if has_init:
             a[:] = np.nan
             b[:] = np.nan
             _update(S, a, b, span, m1, m2)
         _finish_sums(ZT, MT, a, b, autocorr, F)
-    else:
-        WT = np.empty((w, g), dtype=_F32)
-        A = np.empty((g, w), dtype=_F32)
-        rank = np.maximum((cnt - 1) // 2, 0)
-        inv = np.empty(g, dtype=_F32)
-        for _ in range(n_it):
-            # scale: normalised MAD about the current lines (numpy's vectorised row sort), re-estimated
-            # at each of the first passes, then held
-            _abs_residuals(ZT, MT, a, b, A)
-            A.sort(axis=1)
-            med = A[all_rows, rank].astype(float)
-            med[cnt == 0] = 0.0
-            scale = np.maximum(1.4826 * med, float(floor))
-            inv = (1.0 / (float(tuning) * scale)).astype(_F32)
-            _reweight(ZT, MT, a, b, inv, code, WT, S)
-            _update(S, a, b, span, m1, m2)
-        # rows whose line still moves go on at their held scale
-        with np.errstate(invalid="ignore"):
-            act = np.flatnonzero(np.maximum(m1, m2) >= tol * scale)
-        if act.size and n_it < cap:
-            _converge(ZT, MT, WT, act, a, b, inv, code, span, m1, m2, S, n_it, cap, float(tol), scale)
-        _finish_sums(ZT, WT, a, b, autocorr, F)
-    _line_stats(S, F, a, b, scale, base_a, base_b, s.astype(float), float(floor), n, sel, out)
+        _line_stats(S, F, a, b, scale, base_a, base_b, off, float(floor), n, sel, out)
+        return
+    WT = np.empty((w, g), dtype=_F32)
+    A = np.empty((g, w), dtype=_F32)
+    scale = np.empty(g)
+    inv = np.empty(g, dtype=_F32)
+    for _ in range(n_it):
+        # scale: normalised MAD about the current lines (numpy's vectorised row sort), re-estimated
+        # at each of the first passes, then held
+        _abs_residuals(ZT, MT, a, b, A)
+        A.sort(axis=1)
+        _scale_pass(ZT, MT, A, cnt, float(floor), float(tuning), code, a, b, WT, S, span, m1, m2, scale, inv)
+    # rows whose line still moves go on at their held scale
+    F = _group_end(ZT, MT, WT, a, b, inv, code, span, m1, m2, S, n_it, cap, float(tol), scale, autocorr)
+    _line_stats(S, F, a, b, scale, base_a, base_b, off, float(floor), n, sel, out)
 
 
 def robust_windows(
