@@ -736,6 +736,28 @@ def test_throw_tool_end_to_end(tmp_path):
     assert sorted(p.name for p in res.figures) == ["throw_map.png", "throw_profiles.png", "throw_systems.png"]
 
 
+def test_first_run_compile_is_announced(tmp_path, monkeypatch):
+    # a fresh environment compiles the kernels (about 13 s) before the first batch: the tool says so
+    # instead of sitting silent; once compiled, numba's on-disk cache holds them (common practice)
+    from faultmap import kernels
+    from faultmap.runner import run_tools
+    from faultmap.synthetic import build_dem, parallel_faults
+
+    f = parallel_faults(1, spacing_m=900.0, length_m=[1600.0], throw_m=[10.0], dip_dir_deg=90.0,
+                        centre_xy=(1000.0, 1000.0), crs=CRS)
+    z, _, _ = build_dem(f, origin_xy=(0.0, 2000.0), pixel_size_m=PX, shape=(200, 200), scarp_width_m=20.0, seed=2)
+    tif = write_tif(tmp_path / "dem.tif", z, y0=2000.0)
+    f[["geometry"]].to_file(tmp_path / "traces.gpkg", layer="traces")
+    said = []
+    monkeypatch.setattr(kernels, "compiled_on_disk", lambda: False)
+    run_tools(["throw"], inputs={"faults": tmp_path / "traces.gpkg", "dem": tif}, out=tmp_path / "o.gpkg",
+              echo=said.append)
+    assert any("compiling faultmap's kernels" in m for m in said)
+    monkeypatch.undo()
+    if kernels.ENABLED:
+        assert kernels.compiled_on_disk() is True  # the run above used (and cached) every kernel
+
+
 def test_window_reader_voids(tmp_path):
     # pitfalls.md: a DEM without a nodata tag still has voids (-32768 in int16 here); +-inf are voids;
     # a void never becomes a number, and z_factor scales the rest

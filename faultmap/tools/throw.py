@@ -56,6 +56,10 @@ def run(ctx, p: dict) -> None:
         def mapper(func, batches, prog):
             return ctx.engine.map(func, batches, progress=prog)
 
+    from faultmap import kernels
+
+    if kernels.compiled_on_disk() is False:
+        ctx.info("first run in this environment: compiling faultmap's kernels (about 13 s, once).")
     res = measure_throw(faults, dem, params=params, mapper=mapper, progress=progress, min_batches=min_batches)
     for w in res.warnings:
         ctx.warn(w)
