@@ -79,3 +79,37 @@ def test_z_factor_and_errors(tmp_path):
         open_dem(write_dem(tmp_path / "g.tif", _plane(), crs="EPSG:4326", x0=10.0, y0=50.0, px=0.001))
     with pytest.raises(CRSError, match="no CRS"):
         open_dem(write_dem(tmp_path / "n.tif", _plane(), crs=None))
+
+
+@pytest.mark.parametrize(
+    "layout",
+    [
+        dict(tiled=True, blockxsize=32, blockysize=32),  # uncompressed tiles: memory-mapped
+        dict(),  # uncompressed strips: memory-mapped
+        dict(tiled=True, blockxsize=32, blockysize=32, compress="deflate"),  # compressed: block cache
+    ],
+)
+def test_window_reads_same_with_and_without_the_memory_map(tmp_path, layout, monkeypatch):
+    # reference: GDAL's ordinary block-cache read of the same window (GTIFF_VIRTUAL_MEM_IO=NO); the
+    # memory-mapped read used for uncompressed GeoTIFFs must give the same values, voids included
+    import rasterio
+    from rasterio.transform import from_origin
+
+    import faultmap.io.dem as dem_io
+
+    z = _plane().astype("float32")
+    z[40:60, 30:50] = -9999.0
+    path = tmp_path / "l.tif"
+    with rasterio.open(
+        path, "w", driver="GTiff", width=z.shape[1], height=z.shape[0], count=1, dtype="float32",
+        crs="EPSG:32633", transform=from_origin(X0, Y0, PX, PX), nodata=-9999.0, **layout,
+    ) as ds:
+        ds.write(z, 1)
+    dem = open_dem(path)
+    bounds = (X0 + 5 * PX, Y0 - 100 * PX, X0 + 70 * PX, Y0 - 10 * PX)
+    mapped = dem_io.read_window_array(dem, bounds, pad_pixels=2)
+    monkeypatch.setattr(dem_io, "_VIRTUAL_MEM_IO", "NO")
+    cached = dem_io.read_window_array(dem, bounds, pad_pixels=2)
+    assert mapped[0].shape == cached[0].shape and mapped[2] == cached[2]
+    np.testing.assert_array_equal(mapped[0], cached[0])  # NaN where void in both
+    assert np.isnan(mapped[0]).any() and np.isfinite(mapped[0]).any()
