@@ -938,17 +938,27 @@ def _solve_poly(s0, s1, s2, s3, s4, b0, b1, b2, nl, nr, coef, crow):  # pragma: 
 
 
 @_jit
-def _local_sums(i, group, Vz, base, J, Kcol, x):  # pragma: no cover
-    """Weighted sums of the local fit at station i with kernel weights Kcol (2J + 1)."""
-    n = Vz.size
+def _neighbours(i, group, J):  # pragma: no cover
+    """Kernel positions q0 .. q1 - 1 (station i - J + q) that exist and share station i's group (contiguous)."""
+    n = group.size
+    q0 = max(J - i, 0)
+    q1 = min(2 * J + 1, n - i + J)
+    while group[i + q0 - J] != group[i]:
+        q0 += 1
+    while group[i + q1 - 1 - J] != group[i]:
+        q1 -= 1
+    return q0, q1
+
+
+@_jit
+def _local_sums(i, q0, q1, J, Vz, base, Kcol, x):  # pragma: no cover
+    """Weighted sums of the local fit at station i with kernel weights Kcol (2J + 1), over q0 .. q1 - 1."""
     s0 = s1 = s2 = s3 = s4 = 0.0
     b0 = b1 = b2 = 0.0
     nl = 0
     nr = 0
-    for q in range(2 * J + 1):
+    for q in range(q0, q1):
         j = i + q - J
-        if j < 0 or j >= n or group[j] != group[i]:
-            continue
         w = base[j] * Kcol[q]
         if w == 0.0:
             continue
@@ -985,8 +995,9 @@ def _cv_choice(group, Tc, sec, Vz, base, Kcv, n_g, cv_tie):  # pragma: no cover
     crow = np.empty(3)
     for i in range(n):
         g = group[i]
+        q0, q1 = _neighbours(i, group, J)
         for k in range(m):
-            s0, s1, s2, s3, s4, b0, b1, b2, nl, nr = _local_sums(i, group, Vz, base, J, Kcv[:, k], x)
+            s0, s1, s2, s3, s4, b0, b1, b2, nl, nr = _local_sums(i, q0, q1, J, Vz, base, Kcv[:, k], x)
             okq, okl, empty = _solve_poly(s0, s1, s2, s3, s4, b0, b1, b2, nl, nr, coef, crow)
             if empty:
                 continue
@@ -1037,7 +1048,8 @@ def _final_fit(group, Vz, E2, base, Kf, pick, Ts, se_s, coef_out):  # pragma: no
     crow = np.empty(3)
     for i in range(n):
         Kcol = Kf[:, pick[i]]
-        s0, s1, s2, s3, s4, b0, b1, b2, nl, nr = _local_sums(i, group, Vz, base, J, Kcol, x)
+        q0, q1 = _neighbours(i, group, J)
+        s0, s1, s2, s3, s4, b0, b1, b2, nl, nr = _local_sums(i, q0, q1, J, Vz, base, Kcol, x)
         okq, okl, empty = _solve_poly(s0, s1, s2, s3, s4, b0, b1, b2, nl, nr, coef, crow)
         coef_out[i, 0] = coef[0]
         coef_out[i, 1] = coef[1]
@@ -1052,10 +1064,8 @@ def _final_fit(group, Vz, E2, base, Kf, pick, Ts, se_s, coef_out):  # pragma: no
         chi = 0.0
         sk = 0.0
         sk2 = 0.0
-        for q in range(2 * J + 1):
+        for q in range(q0, q1):
             j = i + q - J
-            if j < 0 or j >= n or group[j] != group[i]:
-                continue
             w = base[j] * Kcol[q]
             if w == 0.0:
                 continue
