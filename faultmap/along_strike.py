@@ -464,17 +464,7 @@ def _grouped_trapz(group, d, v, L, n_groups):
     g = np.concatenate([np.arange(n_groups), group, np.arange(n_groups)])
     dd = np.concatenate([np.zeros(n_groups), d, L])
     vv = np.concatenate([np.zeros(n_groups), v, np.zeros(n_groups)])
-    if _sorted_by_group(group, d):
-        # stations already in (group, distance) order: put each group's two end points around its
-        # stations without sorting (a stable sort would give this same order)
-        pos = np.searchsorted(group, np.arange(n_groups))  # first station of each group
-        o = np.empty(g.size, dtype=np.int64)
-        n = group.size
-        o[pos + 2 * np.arange(n_groups)] = np.arange(n_groups)
-        o[np.arange(n) + 2 * group + 1] = n_groups + np.arange(n)
-        o[np.r_[pos[1:], n] + 2 * np.arange(n_groups) + 1] = n_groups + n + np.arange(n_groups)
-    else:
-        o = np.lexsort((dd, g))
+    o = np.lexsort((dd, g))
     g, dd, vv = g[o], dd[o], vv[o]
     same = g[1:] == g[:-1]
     seg = 0.5 * (vv[1:] + vv[:-1]) * (dd[1:] - dd[:-1])

@@ -865,8 +865,7 @@ def test_downthrown_side_is_the_weighted_sign_and_confidence_the_agreeing_fracti
 
 def test_grouped_integral_matches_numpy_trapezoid_in_any_order():
     # reference library: numpy.trapezoid of each group's profile, closed by zero at 0 and at L (the
-    # tips); stations given in (group, distance) order take a path without sorting, any other order the
-    # sorted one: the same numbers, ties included (a station exactly at a tip)
+    # tips); stations in any order give the same numbers, ties included (a station exactly at a tip)
     from faultmap.along_strike import _grouped_trapz, _sorted_by_group
 
     rng = np.random.default_rng(11)
