@@ -336,7 +336,7 @@ def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols
         ax.set_xlabel(f"distance along system strike axis {ax_deg:.0f}° (m)")
         ax.set_ylabel("throw (m)")
         ax.axhline(0, color="0.6", lw=0.6)
-        ax.legend(fontsize=7, loc="upper right")
+        ax.legend(fontsize=7, loc="best", framealpha=0.85)
     fig.suptitle("Throw along linked fault systems", fontsize=11)
     fig.tight_layout(rect=(0, 0, 1, 0.96))
     return fig
