@@ -1,11 +1,11 @@
 """Benchmark of faultmap's engines (a script, not a test): in-process vs a local Dask cluster.
 
 Builds the synthetic rift of ``bench_throw.py`` (a fault population displacing a gently rough
-surface, ``faultmap.synthetic``) as a tiled GeoTIFF in a temporary folder, then runs
+surface, ``faultmap.synthetic.builder``) as a tiled GeoTIFF in a temporary folder, then runs
 
-1. the throw step (``faultmap.throw.measure_throw``) with ``memory_budget_mb`` below the DEM's size,
+1. the throw step (``faultmap.throw.step.measure_throw``) with ``memory_budget_mb`` below the DEM's size,
    so that it runs as many spatial batches, each reading its own DEM windows;
-2. the strain step (Kostrov sums on a fine grid, in tiles of cells: ``faultmap.strain``),
+2. the strain step (Kostrov sums on a fine grid, in tiles of cells: ``faultmap.extension.kostrov``),
 
 in-process and on local Dask clusters of 1 and 2 worker processes (``faultmap.engine``), checks that
 every engine returns the same stations, faults and cells (bit for bit: the same batch plan), and
@@ -65,8 +65,8 @@ def _start_tracing() -> None:
 
 def _warm_up() -> None:
     """Import what the tasks use, so the first timed batch does not pay for it."""
-    import faultmap.strain  # noqa: F401
-    import faultmap.throw  # noqa: F401
+    import faultmap.extension.kostrov  # noqa: F401
+    import faultmap.throw.step  # noqa: F401
 
 
 #: Seconds the last ``_throw`` call spent in engine maps (batches and smoothing chunks), by engine.
@@ -76,8 +76,8 @@ MAP_SECONDS: dict = {}
 def _throw(faults, dem, params, engine):
     """The throw step on ``engine`` (None: in-process, one thread); the time inside its maps is noted."""
     from faultmap.engine import engine_map
-    from faultmap.throw import measure_throw
-    from faultmap.throw_batches import min_batches_for
+    from faultmap.throw.batches import min_batches_for
+    from faultmap.throw.step import measure_throw
 
     spent = [0.0]
 
@@ -106,7 +106,7 @@ def _reference_task(seed: int) -> float:
 
 def _strain(res, cell_m, engine):
     from faultmap.engine import engine_map
-    from faultmap.strain import gather_kostrov_tiles, kostrov_tile, plan_kostrov_tiles
+    from faultmap.extension.kostrov import gather_kostrov_tiles, kostrov_tile, plan_kostrov_tiles
 
     tiles, grid = plan_kostrov_tiles(res.faults, res.stations, cell_size_m=cell_m, tile_cells=64)
     cells, whole = gather_kostrov_tiles(engine_map(engine, kostrov_tile, tiles), grid)
@@ -118,7 +118,7 @@ def _batches_only(faults, dem, params, engine):
     from functools import partial
 
     from faultmap.engine import engine_map
-    from faultmap.throw import plan_batches, run_batch
+    from faultmap.throw.step import plan_batches, run_batch
 
     return engine_map(engine, partial(run_batch, dem=dem, params=params), plan_batches(faults, dem, params))
 
@@ -153,7 +153,7 @@ def main(argv=None):
 
     from faultmap.engine import make_engine
     from faultmap.io.dem import open_dem
-    from faultmap.throw import plan_batches, resolve_params
+    from faultmap.throw.step import plan_batches, resolve_params
 
     n_pix, n_faults, budget = (3000, 300, 16.0) if a.small else (8000, 2000, 64.0)
     budget = a.budget_mb or budget

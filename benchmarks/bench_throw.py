@@ -1,10 +1,10 @@
 """Benchmark of faultmap's throw step (a script, not a test).
 
-Builds a synthetic DEM physically from known fault slips (faultmap.synthetic),
+Builds a synthetic DEM physically from known fault slips (faultmap.synthetic.builder),
 writes it as a tiled GeoTIFF in a temporary folder, and measures in the same
 run, in profile samples per second:
 
-1. faultmap's whole throw step (``faultmap.throw.measure_throw``: stations,
+1. faultmap's whole throw step (``faultmap.throw.step.measure_throw``: stations,
    crossings, windowed DEM reads, sampling, robust fits, summaries),
    single-threaded and with the default engine (in-process, one thread per
    core, at most 4; the raw gather below runs on one thread);
@@ -63,7 +63,7 @@ def build_scene(folder: Path, n_pixels: int, n_faults: int, seed: int = 3):
     """Synthetic rift: a fault population (D = gamma L) displacing a gently rough surface."""
     import rasterio
 
-    from faultmap.synthetic import build_dem, fault_population
+    from faultmap.synthetic.builder import build_dem, fault_population
 
     ext = (0.0, 0.0, n_pixels * PIXEL_M, n_pixels * PIXEL_M)
     t0 = time.perf_counter()
@@ -198,16 +198,16 @@ def breakdown(faults, dem, rounds=3):
 
     Wraps the step's building blocks with timers: reading the DEM windows
     (``faultmap.io.dem.read_window_array``), bilinear sampling
-    (``faultmap.profiles.sample_profiles``), the profile fits
-    (``faultmap.profiles.fit_profile_matrix``) and the along-strike smoothing
-    (``faultmap.along_strike._smooth_chunk``); the rest (stations, crossings,
+    (``faultmap.throw.profiles.sample_profiles``), the profile fits
+    (``faultmap.throw.profiles.fit_profile_matrix``) and the along-strike smoothing
+    (``faultmap.throw.along_strike._smooth_chunk``); the rest (stations, crossings,
     per-station results, gathering, side, summaries, station points) is the
     whole step minus these.
     """
-    import faultmap.along_strike as along
     import faultmap.io.dem as dem_io
-    import faultmap.profiles as profiles
-    from faultmap.throw import measure_throw
+    import faultmap.throw.along_strike as along
+    import faultmap.throw.profiles as profiles
+    from faultmap.throw.step import measure_throw
 
     spent = {"read": 0.0, "sample": 0.0, "fit": 0.0, "smooth": 0.0}
     patches = [
@@ -270,7 +270,7 @@ def child_memory(tif, gpkg, budget_mb):
     import geopandas as gpd
 
     from faultmap.io.dem import open_dem
-    from faultmap.throw import measure_throw
+    from faultmap.throw.step import measure_throw
 
     faults = gpd.read_file(gpkg, layer="faults")
     dem = open_dem(tif)
@@ -310,8 +310,8 @@ def main(argv=None):
 
     from faultmap.engine import Engine
     from faultmap.io.dem import open_dem
-    from faultmap.throw import measure_throw
-    from faultmap.throw_batches import min_batches_for
+    from faultmap.throw.batches import min_batches_for
+    from faultmap.throw.step import measure_throw
 
     n_pix, n_faults = (2000, 200) if a.small else (8000, 2000)
     with tempfile.TemporaryDirectory(prefix="faultmap_bench_") as tmp:

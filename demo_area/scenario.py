@@ -15,7 +15,7 @@ on a NNE-trending graben (axis azimuth 20 deg) about 15 km wide:
   small rift normal faults), dips 45-70 deg;
 * four faults marked active with the age of the offset surface (40-130 ka).
 
-The DEM is built physically by :func:`faultmap.synthetic.build_dem` (pre-fault
+The DEM is built physically by :func:`faultmap.synthetic.builder.build_dem` (pre-fault
 plane sloping 0.6 deg to the SSW with gentle relief, every fault moving its
 hanging wall down by the throw and away by the heave), so the truth is known.
 The fault layer looks like a real user's: ``name``, ``dip`` and ``dip_dir``
@@ -40,7 +40,7 @@ import shapely
 from shapely.geometry import LineString, MultiLineString, Polygon
 
 from faultmap.errors import OutputError, ParameterError
-from faultmap.synthetic import SceneTruth, build_dem
+from faultmap.synthetic.builder import SceneTruth, build_dem
 
 __all__ = [
     "SCENARIO_NAME",
@@ -258,8 +258,8 @@ def build_demo_scene(scale: float = 1.0) -> tuple[np.ndarray, Any, SceneTruth]:
     Returns
     -------
     dem, transform, truth
-        As :func:`faultmap.synthetic.build_dem`: float32 array (NaN for
-        nodata), rasterio Affine, :class:`faultmap.synthetic.SceneTruth`.
+        As :func:`faultmap.synthetic.builder.build_dem`: float32 array (NaN for
+        nodata), rasterio Affine, :class:`faultmap.synthetic.builder.SceneTruth`.
     """
     grid = demo_grid(scale)
     faults = demo_faults()

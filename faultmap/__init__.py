@@ -5,7 +5,7 @@ GeoPackage layers and figures.
 
 The Python API mirrors the command line: :func:`run_tools` runs named tools,
 :func:`run_project` runs a project (TOML) file. Analyses live in modules named
-for what they compute (``faultmap.prepare``, ``faultmap.throw``...).
+for what they compute (``faultmap.traces.conditioning``, ``faultmap.throw.step``...).
 """
 
 from __future__ import annotations

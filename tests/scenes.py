@@ -1,7 +1,7 @@
 """Unseen synthetic scenes for end-to-end validation of faultmap.
 
 Every scene here is invented (fictional places, not real data) and is built
-the same physical way as the demo area: :func:`faultmap.synthetic.build_dem`
+the same physical way as the demo area: :func:`faultmap.synthetic.builder.build_dem`
 moves each fault's hanging wall down by the throw and away by the heave
 (h = T / tan(dip)) on a pre-fault surface with a regional slope and gentle
 random relief, and a nodata patch is cut out. The scenes differ from the
@@ -45,7 +45,7 @@ import shapely
 from pyproj import CRS
 from shapely.geometry import LineString, Polygon
 
-from faultmap.synthetic import SceneTruth, build_dem, fault_population, grid_spec
+from faultmap.synthetic.builder import SceneTruth, build_dem, fault_population, grid_spec
 
 __all__ = [
     "Scene",
@@ -85,8 +85,8 @@ class Scene:
         ``faults.gpkg`` (layer ``traces``) and ``dem.tif``.
     transects : pathlib.Path or None
         ``transects.gpkg`` (layer ``transects``) if the scene has transects.
-    truth : faultmap.synthetic.SceneTruth
-        From :func:`faultmap.synthetic.build_dem` (traces along the
+    truth : faultmap.synthetic.builder.SceneTruth
+        From :func:`faultmap.synthetic.builder.build_dem` (traces along the
         right-hand-rule strike).
     table : geopandas.GeoDataFrame
         One row per fault: ``fault_id`` (build id), ``name``, ``length_m``,
@@ -572,7 +572,7 @@ def close_faults_scene(folder, *, pixel_size_m: float = 50.0, spacing_m: float =
     -------
     Scene
     """
-    from faultmap.synthetic import parallel_faults
+    from faultmap.synthetic.builder import parallel_faults
 
     crs = CRS.from_epsg(32631)
     px = float(pixel_size_m)

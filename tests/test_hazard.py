@@ -1,4 +1,4 @@
-"""Tests of faultmap.hazard (active-fault screening) on synthetic scenes.
+"""Tests of faultmap.hazard.screening (active-fault screening) on synthetic scenes.
 
 Sources (see /work/shared/methods.md):
 * Wells & Coppersmith (1994), BSSA 84 ("W&C94"); Hanks & Bakun (2002), BSSA 92.
@@ -22,7 +22,7 @@ import shapely
 matplotlib.use("Agg")
 
 from faultmap.errors import InputError, ParameterError  # noqa: E402
-from faultmap.hazard import (  # noqa: E402
+from faultmap.hazard.screening import (  # noqa: E402
     CAUTION,
     mapping_uncertainty_from_scale,
     rupture_scenarios,
@@ -311,7 +311,7 @@ def test_unknown_dip_direction_gives_symmetric_zone_and_warning():
 # ------------------------------------------------------------------ all together + figures
 
 def test_screen_hazard_fields_and_figures(tmp_path):
-    from faultmap.figures.hazard import hazard_map, magnitude_by_relation
+    from faultmap.hazard.figures import hazard_map, magnitude_by_relation
 
     lines = [ns_line(0, 0, 12_000), ns_line(300, 12_800, 9_000), ns_line(8_000, 0, 6_000)]
     f = make_faults(lines, system_id=np.array([1, 1, 2]), active=np.array([True, True, False]))
@@ -385,9 +385,9 @@ def _stub_throw(ctx, p):
 def test_tool_runs_in_pipeline_and_writes_layers(tmp_path):
     import pyogrio
 
+    from faultmap.hazard.tool import MAGNITUDE_FIGURE, MAP_FIGURE, TOOL
     from faultmap.registry import Tool, load_tools
     from faultmap.runner import run_tools
-    from faultmap.tools.hazard import MAGNITUDE_FIGURE, MAP_FIGURE, TOOL
 
     faults, dem = _write_scene(tmp_path)
     reg = load_tools()
@@ -414,8 +414,8 @@ def test_tool_runs_in_pipeline_and_writes_layers(tmp_path):
 
 
 def test_tool_wrapper_on_hand_built_context():
+    from faultmap.hazard.tool import TOOL
     from faultmap.runner import RunContext
-    from faultmap.tools.hazard import TOOL
 
     f = make_faults([ns_line(0, 0, 12_000), ns_line(0, 12_500, 8_000)], system_id=np.array([1, 1]))
     ctx = RunContext(crs=f.crs, echo=lambda m: None, quiet=True)
@@ -437,7 +437,7 @@ def test_missing_system_id_is_a_system_of_its_own():
     import numpy as np
     import shapely
 
-    from faultmap.hazard import rupture_scenarios
+    from faultmap.hazard.screening import rupture_scenarios
 
     f = gpd.GeoDataFrame(
         {"fault_id": [1, 2], "dip_deg": [60.0, 60.0], "dip_dir_deg": [90.0, 90.0], "system_id": [1.0, np.nan],

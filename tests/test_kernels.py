@@ -1,14 +1,14 @@
 """The compiled kernels give the same numbers as the array code they replace.
 
-The array code (faultmap.profiles.sample_profiles and
-faultmap.robust_lines._fit_windows with ``use_jit=False``) is itself checked
+The array code (faultmap.throw.profiles.sample_profiles and
+faultmap.throw.robust_lines._fit_windows with ``use_jit=False``) is itself checked
 against outside references in test_throw.py: scipy.ndimage.map_coordinates
 for the bilinear samples, the M-estimate fixed point (Holland & Welsch 1977)
 for the robust lines. Here the kernels must reproduce it bit for bit
 (the same float32 operations in the same order), including voids, window
 edges, short and empty windows, warm starts and every loss.
 
-The along-strike smoothing kernel (faultmap.kernels.smooth_stations) sums
+The along-strike smoothing kernel (faultmap.throw.kernels.smooth_stations) sums
 station by station where the array code uses matrix products, so it agrees
 to rounding (1e-9 relative), with the same outliers and the same
 cross-validated widths; the array code is checked analytically in
@@ -23,9 +23,9 @@ import numpy as np
 import pytest
 from rasterio.transform import from_origin
 
-from faultmap import kernels
-from faultmap.profiles import sample_profiles
-from faultmap.robust_lines import _fit_windows
+from faultmap.throw import kernels
+from faultmap.throw.profiles import sample_profiles
+from faultmap.throw.robust_lines import _fit_windows
 
 pytestmark = pytest.mark.skipif(not kernels.ENABLED, reason="numba kernels disabled (FAULTMAP_NO_JIT)")
 
@@ -146,7 +146,7 @@ def test_crossing_limits_same_with_grid_and_strtree():
     # the throw step's use of box_pairs: the same crossing distances as with the shapely STRtree
     import shapely
 
-    from faultmap.stations import crossing_limits, place_stations
+    from faultmap.throw.stations import crossing_limits, place_stations
 
     rng = np.random.default_rng(8)
     lines = np.array(
@@ -182,7 +182,7 @@ def test_voids_to_nan_matches_the_array_rule():
 
 @pytest.mark.parametrize("short_rows", [False, True])
 def test_profile_gradients_kernel_matches_array_code(short_rows):
-    from faultmap.scarp_fit import _profile_gradients
+    from faultmap.throw.scarp_fit import _profile_gradients
 
     rng = np.random.default_rng(21)
     R2, K = 900, 47
@@ -204,7 +204,7 @@ def test_whole_profile_fit_same_with_and_without_kernels():
     # the full fit of scarp profiles (coarse lines, scarp edges, far-field fits, refits) with every kernel
     # against the array code alone: the same numbers bit for bit. Profiles: a scarp of random height and
     # width on a sloping surface, noise, gullies (outliers), voids, rows shorter than the matrix.
-    from faultmap.scarp_fit import fit_profile_matrix
+    from faultmap.throw.scarp_fit import fit_profile_matrix
 
     rng = np.random.default_rng(12)
     n, K = 600, 60
@@ -239,7 +239,7 @@ def test_whole_profile_fit_same_with_and_without_kernels():
 
 @pytest.mark.parametrize("sigma", [None, 1.3, 0.0])
 def test_smoothing_kernel_matches_array_code(sigma):
-    from faultmap.along_strike import _smooth_chunk
+    from faultmap.throw.along_strike import _smooth_chunk
 
     rng = np.random.default_rng(5)
     n_g = 400

@@ -1,4 +1,4 @@
-"""Tests of faultmap.magnitude against published relations and check values.
+"""Tests of faultmap.hazard.magnitudes against published relations and check values.
 
 Sources (see /work/shared/methods.md):
 * Wells & Coppersmith (1994), BSSA 84, Table 2A-2B ("W&C94").
@@ -17,7 +17,7 @@ import pandas as pd
 import pytest
 
 from faultmap.errors import InputError, ParameterError
-from faultmap.magnitude import (
+from faultmap.hazard.magnitudes import (
     MAGNITUDE_KEYS,
     RELATIONS,
     displacement_from_magnitude,

@@ -1,4 +1,4 @@
-"""Trace conditioning (faultmap.prepare and the prepare tool)."""
+"""Trace conditioning (faultmap.traces.conditioning and the prepare tool)."""
 
 from __future__ import annotations
 
@@ -10,14 +10,14 @@ import shapely
 from pyproj import CRS, Geod
 
 from faultmap.errors import GeometryError, InputError
-from faultmap.prepare import (
+from faultmap.runner import run_tools
+from faultmap.traces.conditioning import (
     axial_mean_deg,
     censor_flags,
     condition_traces,
     link_systems,
     strike_from_geometry,
 )
-from faultmap.runner import run_tools
 
 UTM = "EPSG:32753"
 
@@ -226,9 +226,9 @@ def test_one_axial_mean_everywhere():
     # Doubled-angle axial mean (Mardia & Jupp 2000): every analysis that averages strikes uses the same
     # implementation and agrees on a known case: two equal axes at 10 and 50 deg average to 30 deg;
     # a north-south set gives 0, never 180 (the range is [0, 180)).
-    from faultmap.directions import axial_mean_deg as base
-    from faultmap.transect import mean_strike_deg
-    from faultmap.width import axial_mean_deg as width_mean
+    from faultmap.extension.transects import mean_strike_deg
+    from faultmap.numerics.directions import axial_mean_deg as base
+    from faultmap.rift import axial_mean_deg as width_mean
 
     assert base([10.0, 230.0], [1.0, 1.0])[0] == pytest.approx(30.0)
     assert width_mean(np.array([10.0, 230.0]), np.array([1.0, 1.0])) == pytest.approx(30.0)

@@ -7,7 +7,7 @@ import numpy as np
 import shapely
 
 from faultmap.runner import run_tools
-from faultmap.synthetic import build_dem
+from faultmap.synthetic.builder import build_dem
 from tests.conftest import write_dem
 
 CRS = "EPSG:32633"

@@ -3,7 +3,7 @@ than the memory budget, and failing workers.
 
 Scenes are synthetic and built by code (the Ostrel Trough of ``tests/scenes.py`` and straight faults
 offsetting a planar surface, written here). References: the unpartitioned functions
-(:func:`faultmap.strain.kostrov_grid`, :func:`faultmap.transect.measure_transects`, themselves checked
+(:func:`faultmap.extension.kostrov.kostrov_grid`, :func:`faultmap.extension.transects.measure_transects`, themselves checked
 against Kostrov 1974 and the heave-summation definitions in test_strain.py / test_transect.py), and for
 the large DEM the throws it was built with (a vertical step of T on a planar surface has throw T).
 """
@@ -22,9 +22,9 @@ import shapely
 from rasterio.transform import from_origin
 from scenes import narrow_rift_scene, read_layers
 
+import faultmap.extension.strain_tool as strain_tool
+import faultmap.extension.transect_tool as transect_tool
 import faultmap.io.dem as dem_io
-import faultmap.tools.strain as strain_tool
-import faultmap.tools.transect as transect_tool
 from faultmap.engine import make_engine
 from faultmap.errors import FaultmapError
 from faultmap.runner import run_tools
@@ -144,7 +144,12 @@ def test_project_engine_table_and_cli_scheduler(ostrel, cluster, monkeypatch, tm
 
 
 def test_strain_tiles_match_the_whole_grid_for_any_tile_size(ostrel):
-    from faultmap.strain import gather_kostrov_tiles, kostrov_grid, kostrov_tile, plan_kostrov_tiles
+    from faultmap.extension.kostrov import (
+        gather_kostrov_tiles,
+        kostrov_grid,
+        kostrov_tile,
+        plan_kostrov_tiles,
+    )
 
     _, ref = ostrel
     faults = gpd.GeoDataFrame(ref["faults"], geometry="geometry")
@@ -166,7 +171,7 @@ def test_strain_tiles_match_the_whole_grid_for_any_tile_size(ostrel):
 
 
 def test_transect_batches_are_independent_of_batch_size(ostrel):
-    from faultmap.transect import (
+    from faultmap.extension.transects import (
         gather_transect_batches,
         measure_transect_batch,
         measure_transects,
@@ -249,7 +254,7 @@ def _step_scene(folder, *, n: int, faults_x_m, throws_m, y_range_m, block: int =
 
 def test_dem_larger_than_the_memory_budget_is_read_window_by_window(tmp_path, monkeypatch):
     from faultmap.io.dem import open_dem
-    from faultmap.throw import measure_throw
+    from faultmap.throw.step import measure_throw
 
     path, truth = _step_scene(tmp_path, n=4000, faults_x_m=(8000.0, 16000.0, 24000.0, 32000.0),
                               throws_m=(40.0, 60.0, 50.0, 30.0), y_range_m=(4000.0, 36000.0))
@@ -350,7 +355,7 @@ def test_transect_warnings_merged_across_batches_match_one_call(ostrel):
     import warnings
 
     from faultmap.errors import FaultmapWarning
-    from faultmap.transect import (
+    from faultmap.extension.transects import (
         gather_transect_batches,
         measure_transect_batch,
         measure_transects,

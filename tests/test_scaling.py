@@ -1,4 +1,4 @@
-"""Tests of faultmap.scaling (displacement-length fits) and its D-L figure.
+"""Tests of faultmap.population.scaling (displacement-length fits) and its D-L figure.
 
 Every numeric check names its outside source beside it. Synthetic fault
 populations are generated here with seeded numpy; no file is read.
@@ -17,7 +17,7 @@ matplotlib.use("Agg")
 import geopandas as gpd  # noqa: E402
 
 from faultmap.errors import InputError, ParameterError  # noqa: E402
-from faultmap.scaling import (  # noqa: E402
+from faultmap.population.scaling import (  # noqa: E402
     analyse_scaling,
     compare_to_references,
     displacement_population,
@@ -461,7 +461,7 @@ def test_missing_column_and_bad_option_raise_clear_errors():
 def test_dl_figure_has_fits_references_and_labels(tmp_path):
     from matplotlib.figure import Figure
 
-    from faultmap.figures.scaling import dl_figure
+    from faultmap.population.figures import dl_figure
 
     g = _population_with_outliers()
     r = analyse_scaling(g, bootstrap_n=50)
@@ -484,8 +484,8 @@ def test_tool_wrapper_on_a_hand_built_context(tmp_path):
     # The throw tool may not be built: run the wrapper on a RunContext holding
     # a faults layer as throw leaves it (data contract, DEVELOPERS.md).
     from faultmap.io.gpkg import write_gpkg
+    from faultmap.population.tool import TOOL
     from faultmap.runner import RunContext
-    from faultmap.tools.scaling import TOOL
 
     g = _population_with_outliers()
     ctx = RunContext(quiet=True, echo=lambda msg: None)

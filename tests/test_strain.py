@@ -1,4 +1,4 @@
-"""Tests of faultmap.strain (Kostrov summation) and the extension figures.
+"""Tests of faultmap.extension.kostrov (Kostrov summation) and the extension figures.
 
 Synthetic scenes are built here; every numeric check names its source.
 """
@@ -18,8 +18,8 @@ import shapely  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 
 from faultmap.errors import CRSError, FaultmapWarning, ParameterError  # noqa: E402
-from faultmap.figures.extension import extension_map_figure, transect_extension_figure  # noqa: E402
-from faultmap.strain import (  # noqa: E402
+from faultmap.extension.figures import extension_map_figure, transect_extension_figure  # noqa: E402
+from faultmap.extension.kostrov import (  # noqa: E402
     fault_moment_sum,
     fault_pieces,
     kostrov_grid,
@@ -27,7 +27,7 @@ from faultmap.strain import (  # noqa: E402
     principal_strains,
     whole_area_strain,
 )
-from faultmap.transect import measure_transects  # noqa: E402
+from faultmap.extension.transects import measure_transects  # noqa: E402
 
 CRS = "EPSG:32636"
 
@@ -333,8 +333,8 @@ def test_extension_figures():
 def test_tool_wrapper_grid_and_study_area():
     from pyproj import CRS as _CRS
 
+    from faultmap.extension.strain_tool import TOOL
     from faultmap.runner import RunContext
-    from faultmap.tools.strain import TOOL
 
     faults, stations = oblique_scene()
     area = gpd.GeoDataFrame({"name": ["all"]}, geometry=[shapely.box(-3e4, -3e4, 4e4, 3e4)], crs=CRS)

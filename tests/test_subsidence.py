@@ -21,7 +21,7 @@ import numpy as np
 import pytest
 
 from faultmap.errors import ParameterError
-from faultmap.subsidence import (
+from faultmap.rift.subsidence import (
     SECONDS_PER_MYR,
     initial_subsidence_m,
     mckenzie_constants,
@@ -139,7 +139,7 @@ def test_curve_table_and_validation():
 
 
 def test_subsidence_figure(tmp_path):
-    from faultmap.figures.width import subsidence_figure
+    from faultmap.rift.figures import subsidence_figure
 
     fig = subsidence_figure(subsidence_curve(2.0))
     ax = fig.axes[0]

@@ -18,7 +18,7 @@ import pandas as pd
 import pytest
 
 from faultmap.errors import FaultmapWarning, InputError
-from faultmap.swath import profile_stats, sample_bilinear, swath_features, swath_grid, swath_profiles
+from faultmap.rift.swath import profile_stats, sample_bilinear, swath_features, swath_grid, swath_profiles
 
 PX = 100.0
 X0, Y0 = 400000.0, 3000000.0
@@ -130,7 +130,7 @@ def test_grid_geometry_and_stats_shapes():
 
 
 def test_swath_figure(tmp_path):
-    from faultmap.figures.width import swath_figure
+    from faultmap.rift.figures import swath_figure
 
     centre = (X0 + 40e3, Y0 - 35e3)
     dem = valley_dem(centre, 0.0, crest_m=12e3, depth_m=900.0, wobble_m=30.0)

@@ -1,4 +1,4 @@
-"""Tests of faultmap.synthetic: the physically built synthetic scenes.
+"""Tests of faultmap.synthetic.builder: the physically built synthetic scenes.
 
 Every check compares the DEM with analytic geometry of dip-slip on a planar
 fault (heave = throw / tan(dip); vertical separation of a planar surface,
@@ -17,7 +17,7 @@ import shapely
 from shapely.geometry import LineString, MultiLineString, Polygon
 
 from faultmap.errors import FaultmapError, GeometryError, InputError, ParameterError
-from faultmap.synthetic import (
+from faultmap.synthetic.builder import (
     build_dem,
     fault_population,
     grid_spec,

@@ -1,8 +1,8 @@
-"""Tests of faultmap.throw (throw from the DEM) and faultmap.stations.
+"""Tests of faultmap.throw.step (throw from the DEM) and faultmap.throw.stations.
 
 Scenes are built by code: analytic scarps with numpy (a hanging wall moved by
 (heave, -throw) across a planar fault) and physically built DEMs from
-faultmap.synthetic. Each numeric check names its source beside it.
+faultmap.synthetic.builder. Each numeric check names its source beside it.
 """
 
 from __future__ import annotations
@@ -19,8 +19,8 @@ from rasterio.transform import from_origin
 
 from faultmap.errors import InputError, ParameterError
 from faultmap.io.dem import open_dem
-from faultmap.stations import crossing_limits, place_stations, side_signs, station_distances
-from faultmap.throw import (
+from faultmap.throw.stations import crossing_limits, place_stations, side_signs, station_distances
+from faultmap.throw.step import (
     fit_profile_matrix,
     measure_throw,
     resolve_params,
@@ -114,8 +114,8 @@ def test_finalise_applies_caskey_on_the_hanging_wall_side_and_leaves_its_input()
     # down (slope_plus = dz/du towards the + side); a fault whose - side is the hanging wall flips both.
     import pandas as pd
 
-    from faultmap.profiles import RAW_COLUMNS
-    from faultmap.throw import finalise_stations
+    from faultmap.throw.profiles import RAW_COLUMNS
+    from faultmap.throw.step import finalise_stations
 
     n = 4
     raw = pd.DataFrame({"fault_id": [1, 1, 2, 2], "dist_m": [0.0, 10.0, 0.0, 10.0], "x": 0.0, "y": 0.0,
@@ -231,7 +231,7 @@ def test_normals_smoothed_over_vertex_noise():
 
 def test_crossing_limits():
     # geometry: a profile from (0,0) along +x crosses a trace at x = 120 and another at x = -80
-    from faultmap.stations import StationSet
+    from faultmap.throw.stations import StationSet
 
     st = StationSet(
         np.array([0]), np.array([0.0]), np.array([0.0]), np.array([0.0]), np.array([1.0]), np.array([0.0])
@@ -304,11 +304,11 @@ def test_caskey_values_recovered_from_dem(tmp_path):
 
 
 # ---------------------------------------------------------------------------
-# Physically built DEM (faultmap.synthetic)
+# Physically built DEM (faultmap.synthetic.builder)
 # ---------------------------------------------------------------------------
 @pytest.fixture(scope="module")
 def synthetic_scene(tmp_path_factory):
-    from faultmap.synthetic import build_dem, parallel_faults
+    from faultmap.synthetic.builder import build_dem, parallel_faults
 
     tmp = tmp_path_factory.mktemp("synth")
     f = parallel_faults(
@@ -340,7 +340,7 @@ def synthetic_scene(tmp_path_factory):
 
 
 def test_throw_profiles_recovered_along_strike(synthetic_scene):
-    # source: the known slips the DEM was built from (faultmap.synthetic truth, elliptical profiles)
+    # source: the known slips the DEM was built from (faultmap.synthetic.builder truth, elliptical profiles)
     f, dem, truth = synthetic_scene
     res = measure_throw(f, dem)
     st = res.stations
@@ -418,7 +418,7 @@ def test_reversal_changes_nothing_and_dip_dir_from_dem(synthetic_scene):
 def test_batches_independent_of_memory_budget(synthetic_scene):
     # engineering: tiling the work (small memory budget -> many batches) gives the same numbers,
     # and the Dem handed to batches is picklable (it carries the path, not an open dataset)
-    from faultmap.throw import plan_batches
+    from faultmap.throw.step import plan_batches
 
     f, dem, _ = synthetic_scene
     pickle.loads(pickle.dumps(dem))
@@ -435,9 +435,9 @@ def test_batches_independent_of_memory_budget(synthetic_scene):
 
 
 def test_close_parallel_faults_do_not_contaminate(tmp_path):
-    # source: the known slips (faultmap.synthetic); two faults 160 m apart, throws 25 and 6 m:
+    # source: the known slips (faultmap.synthetic.builder); two faults 160 m apart, throws 25 and 6 m:
     # each profile stops at the neighbour's trace, so each fault keeps its own throw
-    from faultmap.synthetic import build_dem, parallel_faults
+    from faultmap.synthetic.builder import build_dem, parallel_faults
 
     f = parallel_faults(
         2,
@@ -594,7 +594,7 @@ def test_linkage_zone_between_collinear_segments(tmp_path):
     # construction: two collinear segments of one system with a 200 m gap; each elliptical
     # profile tapers to zero at its tips, so their summed throw has a minimum in the gap
     # (relay/linkage zone; Peacock & Sanderson 1991, from memory)
-    from faultmap.synthetic import build_dem
+    from faultmap.synthetic.builder import build_dem
 
     rows = [
         {
@@ -640,8 +640,8 @@ def test_linkage_zone_between_collinear_segments(tmp_path):
 def test_figures(synthetic_scene):
     from matplotlib.figure import Figure
 
-    from faultmap.figures.throw import hillshade, system_profiles, throw_map, throw_profiles
     from faultmap.io.dem import read_overview
+    from faultmap.throw.figures import hillshade, system_profiles, throw_map, throw_profiles
 
     f, dem, _ = synthetic_scene
     g = f.copy()
@@ -670,10 +670,10 @@ def test_figures(synthetic_scene):
 # Tool wrapper, end to end
 # ---------------------------------------------------------------------------
 def test_throw_tool_end_to_end(tmp_path):
-    # source: the known slips of a synthetic scene (faultmap.synthetic); traces digitised in
+    # source: the known slips of a synthetic scene (faultmap.synthetic.builder); traces digitised in
     # mixed directions and without dip directions go through prepare and throw into a GeoPackage
     from faultmap.runner import run_tools
-    from faultmap.synthetic import build_dem, parallel_faults
+    from faultmap.synthetic.builder import build_dem, parallel_faults
 
     f = parallel_faults(
         2,
@@ -739,9 +739,9 @@ def test_throw_tool_end_to_end(tmp_path):
 def test_first_run_compile_is_announced(tmp_path, monkeypatch):
     # a fresh environment compiles the kernels (about 13 s) before the first batch: the tool says so
     # instead of sitting silent; once compiled, numba's on-disk cache holds them (common practice)
-    from faultmap import kernels
     from faultmap.runner import run_tools
-    from faultmap.synthetic import build_dem, parallel_faults
+    from faultmap.synthetic.builder import build_dem, parallel_faults
+    from faultmap.throw import kernels
 
     f = parallel_faults(1, spacing_m=900.0, length_m=[1600.0], throw_m=[10.0], dip_dir_deg=90.0,
                         centre_xy=(1000.0, 1000.0), crs=CRS)
@@ -815,7 +815,7 @@ def test_no_measurable_station_still_completes(tmp_path):
 def test_profile_smoothing_recovers_shapes_and_is_chunk_invariant():
     # analytic: a parabolic throw profile is reproduced by the local quadratic (Cleveland 1979); a noisy
     # constant profile is smoothed (its scatter shrinks); chunks of whole faults change nothing
-    from faultmap.throw import _smooth_profiles
+    from faultmap.throw.step import _smooth_profiles
 
     rng = np.random.default_rng(7)
     g = np.repeat(np.arange(300), 24)
@@ -841,7 +841,7 @@ def test_downthrown_side_is_the_weighted_sign_and_confidence_the_agreeing_fracti
     # the definition (docstring of infer_downthrown_side; common practice), computed fault by fault in
     # plain Python: the side is the sign of the inverse-variance weighted mean separation, so a few
     # stations with large errors cannot outvote the rest; confidence = fraction of usable stations agreeing
-    from faultmap.throw import infer_downthrown_side
+    from faultmap.throw.step import infer_downthrown_side
 
     fid = np.array([5, 5, 5, 5, 9, 9, 9, 2, 2, 4])
     vs = np.array([1.0, 1.2, -30.0, np.nan, -2.0, -2.5, 3.0, 0.5, 0.7, 1.0])
@@ -866,7 +866,7 @@ def test_downthrown_side_is_the_weighted_sign_and_confidence_the_agreeing_fracti
 def test_grouped_integral_matches_numpy_trapezoid_in_any_order():
     # reference library: numpy.trapezoid of each group's profile, closed by zero at 0 and at L (the
     # tips); stations in any order give the same numbers, ties included (a station exactly at a tip)
-    from faultmap.along_strike import _grouped_trapz, _sorted_by_group
+    from faultmap.throw.along_strike import _grouped_trapz, _sorted_by_group
 
     rng = np.random.default_rng(11)
     n_g = 40
@@ -895,7 +895,7 @@ def test_bilinear_samples_match_map_coordinates():
     # beyond the window must come out NaN exactly where it says so
     from scipy import ndimage
 
-    from faultmap.profiles import sample_profiles
+    from faultmap.throw.profiles import sample_profiles
 
     rng = np.random.default_rng(11)
     arr = (800.0 + np.cumsum(rng.normal(0.0, 1.0, (120, 150)), axis=1)).astype("float32")
@@ -922,7 +922,7 @@ def test_bilinear_samples_match_map_coordinates():
 
 def test_points_along_match_shapely():
     # reference library: shapely.line_interpolate_point, including repeated vertices and the end points
-    from faultmap.stations import points_along
+    from faultmap.throw.stations import points_along
 
     rng = np.random.default_rng(5)
     lines = np.array(

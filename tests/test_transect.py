@@ -1,4 +1,4 @@
-"""Tests of faultmap.transect and faultmap.subresolution.
+"""Tests of faultmap.extension.transects and faultmap.extension.subresolution.
 
 Synthetic scenes are built here from straight (or arc) LineStrings with
 analytic throw profiles; every numeric check names its source.
@@ -14,8 +14,8 @@ import pytest
 import shapely
 
 from faultmap.errors import CRSError, FaultmapWarning, InputError, ParameterError
-from faultmap.subresolution import corrected_sum, detection_throw_m, fraction_below_detection
-from faultmap.transect import auto_transects, mean_strike_deg, measure_transects, throw_at
+from faultmap.extension.subresolution import corrected_sum, detection_throw_m, fraction_below_detection
+from faultmap.extension.transects import auto_transects, mean_strike_deg, measure_transects, throw_at
 
 CRS = "EPSG:32636"
 
@@ -433,7 +433,7 @@ def _ctx(faults, stations, transects=None):
 
 
 def test_tool_wrapper_auto_and_user_transects():
-    from faultmap.tools.transect import TOOL
+    from faultmap.extension.transect_tool import TOOL
 
     faults, stations = _oblique_scene()  # throw errors 2 m
     ctx = _ctx(faults, stations)
@@ -462,7 +462,7 @@ def test_tool_wrapper_auto_and_user_transects():
 def test_fraction_check_value_above_half():
     # Marrett & Allmendinger (1992) relation (methods.md): with C = 1.2, D_min 0.01, D_t 20, D_max 2000 the
     # fraction below detection is 0.8558 (verified check value) - more than half: the tool must warn.
-    from faultmap.subresolution import fraction_below_detection
+    from faultmap.extension.subresolution import fraction_below_detection
 
     f = fraction_below_detection(20.0, d_min=0.01, d_max=2000.0, exponent_c=1.2)
     assert abs(float(f) - 0.8558) < 5e-4

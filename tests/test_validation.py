@@ -1,7 +1,7 @@
 """End-to-end validation of faultmap on unseen synthetic scenes.
 
 The scenes (``tests/scenes.py``) are built physically by
-:func:`faultmap.synthetic.build_dem` and differ from the demo area in seed,
+:func:`faultmap.synthetic.builder.build_dem` and differ from the demo area in seed,
 geometry, orientation (rift axes 35, 140 and 75 deg), fault count, pixel size
 and CRS (EPSG:32633, a custom transverse Mercator on GRS80, EPSG:32614). Each
 scene is written to files, run through the tools with
@@ -142,8 +142,8 @@ def test_max_throw_recovered_peaked_profiles(peaked):
 
     Triangular along-strike profiles (linear tapers to a central peak) are
     described for many natural faults (Manighetti et al. 2001, from memory)
-    and are one of faultmap.synthetic's profile shapes. Regression test: with
-    8 stations per short fault and smoothing of 1.5 stations, faultmap.throw
+    and are one of faultmap.synthetic.builder's profile shapes. Regression test: with
+    8 stations per short fault and smoothing of 1.5 stations, faultmap.throw.step
     once lost ~13 % of such peaks (median -13.4 % on this scene).
     """
     scene, layers = peaked
@@ -258,7 +258,7 @@ def test_neighbour_cut_profiles_are_truncated_not_outside(tmp_path):
 
     DEVELOPERS.md data contract: status 'outside' = beyond the DEM,
     'truncated' = the profile is cut short (here by a trace 650 m away, 3.6 km
-    from the edge). Regression test: faultmap.throw once let 'outside' win
+    from the edge). Regression test: faultmap.throw.step once let 'outside' win
     whenever too few samples remained, whatever cut the profile.
     """
     scene = close_faults_scene(tmp_path)
@@ -280,7 +280,7 @@ def test_run_without_measurable_station_completes(tmp_path):
 
     Data contract (DEVELOPERS.md): statuses say why a station has no throw;
     a run must not fail because none could be measured. Regression test:
-    faultmap.throw._station_lookup once raised ValueError on an empty set.
+    faultmap.throw.step._station_lookup once raised ValueError on an empty set.
     """
     scene = close_faults_scene(tmp_path, isolated=False)
     layers = _run(scene, ["throw"])

@@ -23,7 +23,7 @@ import pytest
 import shapely
 
 from faultmap.errors import GeometryError, ParameterError
-from faultmap.width import (
+from faultmap.rift import (
     axial_mean_deg,
     axis_coordinates,
     classify_rift,
@@ -336,7 +336,7 @@ def test_bad_inputs_raise_project_errors():
 
 
 def test_figures_map_and_width(tmp_path):
-    from faultmap.figures.width import rift_map_figure, width_along_axis_figure
+    from faultmap.rift.figures import rift_map_figure, width_along_axis_figure
 
     f = narrow_rift()
     ax = rift_axis(f)
@@ -403,9 +403,9 @@ def test_width_tool_in_pipeline(tmp_path):
     import pyogrio
 
     from faultmap.registry import Tool, load_tools
+    from faultmap.rift.subsidence import initial_subsidence_m
+    from faultmap.rift.tool import TOOL
     from faultmap.runner import run_tools
-    from faultmap.subsidence import initial_subsidence_m
-    from faultmap.tools.width import TOOL
 
     faults, dem = _small_rift_scene(tmp_path)
     reg = load_tools()
@@ -441,8 +441,8 @@ def test_width_tool_in_pipeline(tmp_path):
 def test_width_tool_beta_from_transects_and_skip_without_beta():
     import pandas as pd
 
+    from faultmap.rift.tool import TOOL
     from faultmap.runner import RunContext
-    from faultmap.tools.width import TOOL
 
     f = narrow_rift()
     ctx = RunContext(crs=f.crs, echo=lambda m: None, quiet=True)

@@ -304,7 +304,7 @@ def open_dem(path, *, nodata: float | None = None, z_factor: float = 1.0, band: 
 
 
 # ---------------------------------------------------------------------------
-# Fast windowed reads for batched profile sampling (added for faultmap.throw)
+# Fast windowed reads for batched profile sampling (added for faultmap.throw.step)
 # ---------------------------------------------------------------------------
 #: GDAL's GTIFF_VIRTUAL_MEM_IO for window reads ("IF_ENOUGH_RAM": only files that fit in RAM).
 _VIRTUAL_MEM_IO = "IF_ENOUGH_RAM"
@@ -372,7 +372,7 @@ def read_window_array(
                 file_nodata = src.nodatavals[dem.band - 1]
     except rasterio.errors.RasterioIOError as exc:  # pragma: no cover - disk errors
         raise InputFileError(f"{dem.path}: cannot read DEM window ({exc}).") from exc
-    from faultmap import kernels
+    from faultmap.throw import kernels
 
     voids = list(dem._extra_voids)
     for v in (dem.nodata, file_nodata):

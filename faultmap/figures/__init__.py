@@ -1,1 +1,0 @@
-"""Figures: matplotlib Figure objects built from analysis results (no pyplot state)."""

@@ -1,0 +1,315 @@
+"""Slip rates with Monte Carlo percentiles, and recurrence intervals.
+
+Slip rate = displacement / age of the offset surface; recurrence =
+single-event displacement / net slip rate (methods.md). Throw, age and dip
+are drawn by Monte Carlo; the percentiles are reported. Pure functions, no
+file I/O.
+Everything here is a screening estimate; see :data:`faultmap.hazard.screening.CAUTION`.
+"""
+
+from __future__ import annotations
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from faultmap.errors import InputError, ParameterError
+from faultmap.hazard.inputs import _col, _compact, _ids_text, _require, _selected
+from faultmap.hazard.magnitudes import displacement_from_magnitude, get_relation, range_warnings
+
+__all__ = ["slip_rate_draws", "slip_rates"]
+
+_PCT = (16.0, 50.0, 84.0)
+
+
+def slip_rate_draws(
+    throw_m: np.ndarray,
+    throw_err_m: np.ndarray,
+    age_ka: np.ndarray,
+    age_err_ka: np.ndarray,
+    dip_deg: np.ndarray,
+    *,
+    dip_range_deg: float = 10.0,
+    n_draws: int = 10000,
+    seed: int = 0,
+) -> dict[str, np.ndarray]:
+    """Monte Carlo draws of vertical, horizontal and net slip rates.
+
+    Parameters
+    ----------
+    throw_m, throw_err_m : numpy.ndarray, shape (n,)
+        Cumulative throw of the offset surface and its 1-sigma error, m.
+    age_ka, age_err_ka : numpy.ndarray, shape (n,)
+        Age of the offset surface and its 1-sigma error, ka (> 0).
+    dip_deg : numpy.ndarray, shape (n,)
+        Fault dip, degrees.
+    dip_range_deg : float, optional
+        Dips are drawn uniformly within +- this range of ``dip_deg``
+        (clipped to 1-90 degrees).
+    n_draws : int, optional
+        Draws per fault.
+    seed : int, optional
+        Seed of the numpy random generator; same seed, same draws.
+
+    Returns
+    -------
+    dict of numpy.ndarray, each shape (n, n_draws)
+        ``vert``, ``horiz``, ``net`` rates in mm/yr (m/ka = mm/yr), and the
+        drawn ``throw_m``, ``age_ka``, ``dip_deg``.
+
+    Notes
+    -----
+    Throw ~ normal(throw, err) truncated at 0; age ~ log-normal with median
+    ``age_ka`` and coefficient of variation ``age_err_ka / age_ka``; dip ~
+    uniform. Vertical rate = T / t; horizontal (heave, extension) rate =
+    T / (t tan dip); net dip-slip rate = T / (t sin dip) (geometry;
+    methods.md).
+    """
+    throw = np.asarray(throw_m, float)[:, None]
+    terr = np.asarray(throw_err_m, float)[:, None]
+    age = np.asarray(age_ka, float)[:, None]
+    aerr = np.asarray(age_err_ka, float)[:, None]
+    dip = np.asarray(dip_deg, float)[:, None]
+    n = throw.shape[0]
+    rng = np.random.default_rng(seed)
+    shape = (n, int(n_draws))
+
+    has_err = np.isfinite(terr) & (terr > 0)
+    scale = np.where(has_err, terr, 1.0)
+    loc = np.where(np.isfinite(throw), throw, 0.0)
+    a = -loc / scale
+    t_draw = stats.truncnorm.rvs(a, np.inf, loc=loc, scale=scale, size=shape, random_state=rng)
+    t_draw = np.where(has_err, t_draw, throw)
+
+    cv = np.where(np.isfinite(aerr) & (aerr > 0), aerr / age, 0.0)
+    s_ln = np.sqrt(np.log1p(cv**2))
+    age_draw = age * np.exp(s_ln * rng.standard_normal(shape))
+
+    lo = np.clip(dip - dip_range_deg, 1.0, 90.0)
+    hi = np.clip(dip + dip_range_deg, 1.0, 90.0)
+    lo = np.minimum(lo, dip)
+    dip_draw = lo + (hi - lo) * rng.random(shape)
+    rad = np.radians(dip_draw)
+
+    vert = t_draw / age_draw
+    return {
+        "vert": vert,
+        "horiz": vert / np.tan(rad),
+        "net": vert / np.sin(rad),
+        "throw_m": t_draw,
+        "age_ka": age_draw,
+        "dip_deg": dip_draw,
+    }
+
+
+def slip_rates(
+    faults: gpd.GeoDataFrame,
+    *,
+    fault_ids: list[int] | tuple[int, ...] | None = None,
+    throw_field: str = "max_throw_m",
+    age_rel_err: float = 0.2,
+    age_abs_err_ka: float | None = None,
+    dip_range_deg: float = 10.0,
+    n_draws: int = 10000,
+    seed: int = 0,
+    max_age_ka: float = 5000.0,
+    max_rate_mm_yr: float = 20.0,
+    min_rate_mm_yr: float = 0.001,
+    event_displacement_m: float | np.ndarray | None = None,
+    magnitude_for_displacement: np.ndarray | None = None,
+) -> tuple[pd.DataFrame, list[str]]:
+    """Slip rates (with Monte Carlo percentiles) and recurrence intervals.
+
+    Parameters
+    ----------
+    faults : geopandas.GeoDataFrame
+        Faults with ``fault_id``, ``dip_deg``, ``surface_age_ka``, the throw
+        field and ``max_throw_err_m``; optional ``surface_age_err_ka``.
+    fault_ids : sequence of int, optional
+        Screen these faults instead of those marked active.
+    throw_field : str, optional
+        Cumulative throw used: ``max_throw_m`` (default) or ``mean_throw_m``.
+    age_rel_err : float, optional
+        Relative 1-sigma age error (default 0.2) for faults without
+        ``surface_age_err_ka`` and when ``age_abs_err_ka`` is not set.
+    age_abs_err_ka : float, optional
+        Absolute 1-sigma age error, ka (overrides ``age_rel_err``).
+    dip_range_deg : float, optional
+        Half-width of the uniform dip range drawn, degrees (default 10;
+        methods.md: +-10-15 degrees for an unknown normal-fault dip).
+    n_draws, seed : int, optional
+        Monte Carlo draws per fault and random seed.
+    max_age_ka : float, optional
+        Ages above this (ka) are flagged ``age_suspect``: probably given
+        in years (default 5000 ka).
+    max_rate_mm_yr, min_rate_mm_yr : float, optional
+        Median vertical rates outside this range are flagged ``rate_high`` /
+        ``rate_low`` (implausible for a mapped scarp: check the age units).
+    event_displacement_m : float or array, optional
+        Characteristic single-event displacement, m (scalar or one value per
+        screened fault). Where unknown, the median of Wells & Coppersmith
+        (1994) normal log10(AD) = -4.45 + 0.63 M (from memory) at
+        ``magnitude_for_displacement`` is used, with its scatter (0.33 log10
+        units) drawn in the Monte Carlo.
+    magnitude_for_displacement : array, optional
+        One magnitude per screened fault (e.g. ``mag_preferred``); without
+        it and without ``event_displacement_m`` no recurrence is given.
+
+    Returns
+    -------
+    table : pandas.DataFrame
+        One row per screened fault: ``fault_id``, ``throw_used_m``,
+        ``age_used_ka``, ``age_err_used_ka``, ``slip_rate_{vert,horiz,net}_mm_yr``
+        (median) with ``_p16_`` / ``_p84_`` percentiles, ``rate_flag``
+        (``ok``, ``no_age``, ``no_throw``, ``age_suspect``, ``rate_high``,
+        ``rate_low``; several joined by ``;``), ``event_displacement_m``,
+        ``event_displacement_source``, ``recurrence_yr`` (median),
+        ``recurrence_p16_yr``, ``recurrence_p84_yr``.
+    warnings : list of str
+
+    Raises
+    ------
+    InputError
+        A screened fault has a zero or negative ``surface_age_ka``.
+
+    Notes
+    -----
+    Slip rate = displacement / age of the offset surface; recurrence =
+    single-event displacement / net slip rate (methods.md). 1 m / 1 ka =
+    1 mm/yr. The Wells & Coppersmith displacement is the surface slip in one
+    event, so recurrence uses the net dip-slip rate.
+    """
+    if throw_field not in ("max_throw_m", "mean_throw_m"):
+        raise ParameterError("throw_field must be 'max_throw_m' or 'mean_throw_m'")
+    if age_rel_err < 0 or (age_abs_err_ka is not None and age_abs_err_ka < 0):
+        raise ParameterError("age errors must be >= 0")
+    if not (0 <= dip_range_deg <= 45):
+        raise ParameterError("dip_range_deg must be between 0 and 45")
+    if n_draws < 100:
+        raise ParameterError("n_draws must be >= 100 for stable percentiles")
+    _require(faults, ("fault_id", "dip_deg"), "slip rates")
+    sel, ids, warns = _selected(faults, fault_ids)
+    n = len(sel)
+
+    age = _col(sel, "surface_age_ka")
+    if "surface_age_ka" not in sel.columns and n:
+        warns.append("faults layer has no 'surface_age_ka' field: slip rates and recurrence skipped for all faults; magnitudes still given")
+    bad = np.isfinite(age) & (age <= 0)
+    if bad.any():
+        raise InputError(
+            f"fault(s) {_ids_text(ids[bad])}: surface_age_ka must be > 0 (got {age[bad][0]:g}); fix the age (in ka)"
+        )
+    no_age = ~np.isfinite(age)
+    if no_age.any() and "surface_age_ka" in sel.columns:
+        warns.append(
+            f"fault(s) {_ids_text(ids[no_age])}: no surface_age_ka, slip rate and recurrence skipped; magnitudes still given"
+        )
+    throw = _col(sel, throw_field)
+    if throw_field not in sel.columns and n:
+        warns.append(f"faults layer has no '{throw_field}' field (run the throw tool): slip rates skipped")
+    no_throw = ~np.isfinite(throw) | (throw <= 0)
+    nt = no_throw & ~no_age
+    if nt.any() and throw_field in sel.columns:
+        warns.append(f"fault(s) {_ids_text(ids[nt])}: no positive {throw_field}, slip rate and recurrence skipped")
+    terr = _col(sel, "max_throw_err_m")
+    if throw_field == "mean_throw_m" and "mean_throw_err_m" in sel.columns:
+        terr = _col(sel, "mean_throw_err_m")
+    miss_err = ~np.isfinite(terr) & ~no_throw & ~no_age
+    if miss_err.any():
+        warns.append(f"fault(s) {_ids_text(ids[miss_err])}: no throw error, throw treated as exact in the Monte Carlo")
+    aerr = _col(sel, "surface_age_err_ka")
+    default_err = age * age_rel_err if age_abs_err_ka is None else np.full(n, float(age_abs_err_ka))
+    aerr = np.where(np.isfinite(aerr) & (aerr >= 0), aerr, default_err)
+
+    ok = ~no_age & ~no_throw
+    dip = _col(sel, "dip_deg")
+    cols: dict[str, np.ndarray] = {}
+    draws = slip_rate_draws(
+        np.where(ok, throw, np.nan), terr, np.where(ok, age, 1.0), aerr, np.where(np.isfinite(dip), dip, 60.0),
+        dip_range_deg=dip_range_deg, n_draws=n_draws, seed=seed,
+    ) if n else None
+    for comp in ("vert", "horiz", "net"):
+        if n:
+            p = np.percentile(draws[comp], _PCT, axis=1)
+            p[:, ~ok] = np.nan
+        else:
+            p = np.empty((3, 0))
+        cols[f"slip_rate_{comp}_mm_yr"] = p[1]
+        cols[f"slip_rate_{comp}_p16_mm_yr"] = p[0]
+        cols[f"slip_rate_{comp}_p84_mm_yr"] = p[2]
+
+    # ---- flags -------------------------------------------------------------
+    flags = [[] for _ in range(n)]
+    for i in range(n):
+        if no_age[i]:
+            flags[i].append("no_age")
+        elif no_throw[i]:
+            flags[i].append("no_throw")
+    vmed = cols["slip_rate_vert_mm_yr"]
+    suspect = np.isfinite(age) & (age > max_age_ka)
+    high = np.isfinite(vmed) & (vmed > max_rate_mm_yr)
+    low = np.isfinite(vmed) & (vmed < min_rate_mm_yr)
+    for i in np.flatnonzero(suspect):
+        flags[i].append("age_suspect")
+        warns.append(
+            f"fault {ids[i]}: surface_age_ka {age[i]:g} ka is above {max_age_ka:g} ka, "
+            "too old for a mapped scarp: was the age given in years? (rate_flag age_suspect)"
+        )
+    for i in np.flatnonzero(high):
+        flags[i].append("rate_high")
+        warns.append(
+            f"fault {ids[i]}: vertical slip rate {vmed[i]:.3g} mm/yr is above {max_rate_mm_yr:g} mm/yr, "
+            "implausible for a mapped normal-fault scarp: check surface_age_ka (ka) and the throw (rate_flag rate_high)"
+        )
+    for i in np.flatnonzero(low):
+        flags[i].append("rate_low")
+        warns.append(
+            f"fault {ids[i]}: vertical slip rate {vmed[i]:.3g} mm/yr is below {min_rate_mm_yr:g} mm/yr: "
+            "was surface_age_ka given in years instead of ka? (rate_flag rate_low)"
+        )
+    rate_flag = [";".join(f) if f else "ok" for f in flags]
+
+    # ---- recurrence ----------------------------------------------------------
+    ev = np.full(n, np.nan)
+    if event_displacement_m is not None:
+        ev = np.broadcast_to(np.asarray(event_displacement_m, float), (n,)).copy()
+        if np.any(np.isfinite(ev) & (ev <= 0)):
+            raise ParameterError("event_displacement_m must be > 0")
+    src = np.where(np.isfinite(ev), "user", "")
+    rel = get_relation("ad_on_m_wc94")
+    mag = np.full(n, np.nan) if magnitude_for_displacement is None else np.asarray(magnitude_for_displacement, float)
+    use_rel = ~np.isfinite(ev) & np.isfinite(mag)
+    ev = np.where(use_rel, displacement_from_magnitude(mag, key=rel.key), ev)
+    src = np.where(use_rel, rel.key, src)
+    if (use_rel & ok).any():
+        warns += range_warnings(
+            rel.key, mag[use_rel & ok], labels=[f"fault {i} (recurrence)" for i in ids[use_rel & ok]]
+        )
+    rec = np.full((3, n), np.nan)
+    has_rec = ok & np.isfinite(ev)
+    if has_rec.any():
+        rng = np.random.default_rng(None if seed is None else seed + 1)
+        logd = np.log10(np.where(np.isfinite(ev), ev, 1.0))[:, None] + np.where(use_rel, rel.sigma, 0.0)[:, None] * rng.standard_normal((n, n_draws))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            r = (10.0**logd) * 1000.0 / draws["net"]  # m / (mm/yr) * 1000 = yr
+        rec = np.percentile(r, _PCT, axis=1)
+        rec[:, ~has_rec] = np.nan
+
+    table = pd.DataFrame(
+        {
+            "fault_id": ids,
+            "throw_used_m": np.where(ok, throw, np.nan),
+            "age_used_ka": age,
+            "age_err_used_ka": np.where(np.isfinite(age), aerr, np.nan),
+            **cols,
+            "rate_flag": rate_flag,
+            "event_displacement_m": ev,
+            "event_displacement_source": src,
+            "recurrence_yr": rec[1],
+            "recurrence_p16_yr": rec[0],
+            "recurrence_p84_yr": rec[2],
+        }
+    )
+    return table, _compact(warns)
+

@@ -1,0 +1,18 @@
+"""Shared mathematics used by several analyses.
+
+Shared mathematics: axial (doubled-angle) directions and the hillshade of a DEM array.
+
+Each public name below is imported from its module on first use, so reading the
+package (or its tool declaration) stays light.
+"""
+
+from faultmap.lazy import lazy_exports
+
+_EXPORTS = {
+    "hillshade": "hillshade",
+    "segment_azimuths": "directions",
+    "axial_mean_deg": "directions",
+    "axial_resultant_length": "directions",
+}
+__all__ = list(_EXPORTS)
+__getattr__, __dir__ = lazy_exports(__name__, globals(), _EXPORTS)

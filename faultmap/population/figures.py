@@ -1,0 +1,320 @@
+"""Figures of displacement-length scaling and fault size distributions.
+
+Functions return :class:`matplotlib.figure.Figure` objects built without
+pyplot global state; callers save them (``fig.savefig(path, dpi=170)``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+
+import numpy as np
+from matplotlib.figure import Figure
+
+from faultmap.population.scaling import REFERENCE_RANGES, LineFit, ReferenceRange, ScalingResult
+from faultmap.population.sizes import PowerLawFit, ccdf
+
+__all__ = ["dl_figure", "size_figure"]
+
+_MODEL_STYLE = {
+    "ols": dict(color="#1f4e9c", ls="-", label="OLS"),
+    "rma": dict(color="#c25b00", ls="--", label="RMA"),
+    "york": dict(color="#2a7d2a", ls="-.", label="York (errors in variables)"),
+}
+_LABELS = {
+    "length_m": "Length (m)",
+    "max_throw_m": "Maximum throw (m)",
+    "max_dip_slip_m": "Maximum dip-slip displacement (m)",
+}
+
+
+def _fit_label(name: str, f: LineFit) -> str:
+    lo, hi = f.exponent_ci
+    ci = f"{lo:.2f}-{hi:.2f}" if np.isfinite(lo) else "n/a"
+    return (
+        f"{_MODEL_STYLE.get(name, {}).get('label', name)}: n = {f.exponent:.2f} "
+        f"[{ci}], \u03b3 = {f.gamma:.2g}"
+    )
+
+
+def dl_figure(
+    result: ScalingResult,
+    *,
+    band_model: str | None = None,
+    references: Sequence[ReferenceRange] = REFERENCE_RANGES,
+    label_outliers: bool = True,
+    figsize: tuple[float, float] = (8.0, 8.2),
+) -> Figure:
+    """Log-log displacement-length plot with fits, band, outliers, references.
+
+    Parameters
+    ----------
+    result : ScalingResult
+        Output of :func:`faultmap.population.scaling.analyse_scaling`.
+    band_model : str, optional
+        Model whose bootstrap confidence band is shaded (default: the
+        residual model of the analysis).
+    references : sequence of ReferenceRange
+        Published D/L ratio references drawn as lines labelled with their
+        sources (ratio ranges as a shaded envelope).
+    label_outliers : bool
+        Write the unit id beside each flagged outlier.
+    figsize : tuple of float
+        Inches.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Notes
+    -----
+    Published ratios (Schlische et al. 1996; Kim & Sanderson 2005; Cowie &
+    Scholz 1992) are of maximum displacement; with throw on the y axis the
+    figure says so.
+    """
+    pop = result.population
+    settings = result.settings
+    disp = settings.get("displacement", "throw")
+    unit = settings.get("unit", "trace")
+    band_model = band_model or settings.get("residual_model", "ols")
+    fig = Figure(figsize=figsize, dpi=170)
+    ax = fig.add_subplot(1, 1, 1)
+    L = pop["length_m"].to_numpy(float)
+    D = pop["disp_m"].to_numpy(float)
+    ok = np.isfinite(L) & np.isfinite(D) & (L > 0) & (D > 0)
+    used = pop["used"].to_numpy(bool) & ok
+    cens = pop["censored"].to_numpy(bool) & ok & ~used
+    other = ok & ~used & ~cens
+    # flags of the units (units map 1:1 to population rows)
+    fl = result.faults.drop_duplicates("scaling_unit_id").set_index("scaling_unit_id")
+    flag = fl["scaling_flag"].reindex(pop["unit_id"].to_numpy()).fillna("").to_numpy(object)
+
+    if not ok.any():
+        ax.text(
+            0.5,
+            0.5,
+            "No fault with positive length and displacement",
+            ha="center",
+            va="center",
+            transform=ax.transAxes,
+        )
+        ax.set_axis_off()
+        return fig
+
+    lmin, lmax = np.nanmin(L[ok]), np.nanmax(L[ok])
+    grid = np.logspace(np.log10(lmin) - 0.15, np.log10(lmax) + 0.15, 120)
+
+    # published references (ratio lines)
+    ref_colors = ["#7f7f7f", "#b0b0b0", "#d9d9d9"]
+    ci = 0
+    for ref in references:
+        if ref.quantity != "d_l_ratio":
+            continue
+        tag = f"{ref.source}" + (" (from memory)" if ref.confidence == "memory" else "")
+        if ref.lo == ref.hi:
+            ax.plot(grid, ref.lo * grid, color="k", lw=1.0, ls=":", label=f"D = {ref.lo:g} L, {tag}")
+        else:
+            ax.fill_between(
+                grid,
+                ref.lo * grid,
+                ref.hi * grid,
+                color=ref_colors[ci % 3],
+                alpha=0.25,
+                lw=0,
+                label=f"D/L {ref.lo:g}-{ref.hi:g},\n{tag}",
+            )
+            ci += 1
+
+    # bootstrap band and fits
+    bf = result.fits.get(band_model)
+    if bf is not None and bf.fitted and bf.boot_exponent.size:
+        lo, hi = bf.band(grid)
+        ax.fill_between(
+            grid,
+            lo,
+            hi,
+            color=_MODEL_STYLE.get(band_model, {}).get("color", "C0"),
+            alpha=0.18,
+            lw=0,
+            label=f"{int(100 * bf.ci_level)}% bootstrap band ({band_model.upper()})",
+        )
+    for name, f in result.fits.items():
+        if not f.fitted:
+            continue
+        st = _MODEL_STYLE.get(name, dict(color="C3", ls="-"))
+        ax.plot(grid, f.predict(grid), color=st["color"], ls=st["ls"], lw=1.8, label=_fit_label(name, f))
+
+    # data
+    ax.scatter(L[used], D[used], s=22, c="#333333", zorder=3, label=f"{unit}s used (N = {int(used.sum())})")
+    if cens.any():
+        ax.scatter(
+            L[cens],
+            D[cens],
+            s=26,
+            facecolors="none",
+            edgecolors="#555555",
+            zorder=3,
+            label=f"censored, not fitted (N = {int(cens.sum())})",
+        )
+    if other.any():
+        ax.scatter(L[other], D[other], s=18, marker="x", c="#555555", zorder=3, label="excluded")
+    under = ok & (flag == "under_displaced")
+    over = ok & (flag == "over_displaced")
+    for sel, colour, what in ((under, "#1565c0", "under"), (over, "#c62828", "over")):
+        if sel.any():
+            ax.scatter(
+                L[sel],
+                D[sel],
+                s=80,
+                facecolors="none",
+                edgecolors=colour,
+                lw=1.6,
+                zorder=4,
+                label=f"{what}-displaced outlier",
+            )
+    if label_outliers:
+        for j, i in enumerate(np.flatnonzero(under | over)):
+            dy = 5 if j % 2 == 0 else -11  # alternate to limit overlaps
+            ax.annotate(
+                str(pop["unit_id"].iloc[i]),
+                (L[i], D[i]),
+                xytext=(5, dy),
+                textcoords="offset points",
+                fontsize=8,
+            )
+
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlim(grid[0], grid[-1])
+    ymin = np.nanmin(D[ok]) / 3.0
+    ymax = np.nanmax(D[ok]) * 3.0
+    ax.set_ylim(ymin, ymax)
+    ylab = _LABELS["max_throw_m" if disp == "throw" else "max_dip_slip_m"]
+    ax.set_xlabel(_LABELS["length_m"] + (" of linked system" if unit == "system" else ""), fontsize=11)
+    ax.set_ylabel(ylab, fontsize=11)
+    ax.tick_params(labelsize=9)
+    ax.grid(True, which="both", lw=0.3, alpha=0.5)
+    title = "Displacement-length scaling, D = \u03b3 L\u207f (D, L in m)"
+    ax.set_title(title, fontsize=12)
+    if disp == "throw":
+        ax.text(
+            0.99,
+            0.01,
+            "published ratios are of dip-slip D; throw = D sin(dip)",
+            transform=ax.transAxes,
+            ha="right",
+            va="bottom",
+            fontsize=7.5,
+            color="#555555",
+        )
+    ax.legend(fontsize=7.5, loc="upper center", bbox_to_anchor=(0.5, -0.09), ncol=2, framealpha=0.9)
+    fig.tight_layout()
+    return fig
+
+
+def size_figure(
+    fits: Mapping[str, PowerLawFit],
+    *,
+    detection_limits: Mapping[str, float | None] | None = None,
+    alternatives: bool = True,
+    figsize: tuple[float, float] | None = None,
+) -> Figure:
+    """Cumulative frequency (CCDF) plots with the fitted power laws.
+
+    Parameters
+    ----------
+    fits : mapping of str to PowerLawFit
+        One panel per variable (e.g. ``length_m``, ``max_throw_m``).
+    detection_limits : mapping, optional
+        Detection limit per variable, drawn as a vertical line.
+    alternatives : bool
+        Also draw the fitted exponential and log-normal tails.
+    figsize : tuple of float, optional
+        Inches; default 5.2 per panel by 4.6.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Notes
+    -----
+    Empirical P(X >= x) on log-log axes; the models are scaled by the tail
+    fraction n_tail / n so that they join the data at x_min (Clauset,
+    Shalizi & Newman 2009, fig. 1 style).
+    """
+    detection_limits = dict(detection_limits or {})
+    names = list(fits)
+    k = max(1, len(names))
+    fig = Figure(figsize=figsize or (5.2 * k, 4.6), dpi=170)
+    for i, var in enumerate(names):
+        f = fits[var]
+        ax = fig.add_subplot(1, k, i + 1)
+        xs, p = ccdf(f.values)
+        label = _LABELS.get(var, var)
+        if xs.size == 0:
+            ax.text(0.5, 0.5, "no data", ha="center", va="center", transform=ax.transAxes)
+            ax.set_axis_off()
+            continue
+        ax.loglog(xs, p, "o", ms=3.5, mfc="none", mec="#333333", label=f"data (N = {f.n})")
+        if f.fitted:
+            g = np.logspace(np.log10(f.x_min), np.log10(xs.max()), 100)
+            ax.loglog(
+                g,
+                f.ccdf_model(g, "power_law"),
+                color="#1f4e9c",
+                lw=2.0,
+                label=(
+                    f"power law \u03b1 = {f.alpha:.2f} \u00b1 {f.se:.2f}"
+                    + (f", p_gof = {f.gof_p:.2f}" if np.isfinite(f.gof_p) else "")
+                ),
+            )
+            if alternatives and np.isfinite(f.exp_rate):
+                ax.loglog(
+                    g,
+                    f.ccdf_model(g, "exponential"),
+                    color="#c25b00",
+                    ls="--",
+                    lw=1.3,
+                    label=f"exponential (LR {f.lr_exponential:+.2f}, p = {f.p_exponential:.2f})",
+                )
+            if alternatives and np.isfinite(f.lognormal_sigma):
+                ax.loglog(
+                    g,
+                    f.ccdf_model(g, "lognormal"),
+                    color="#2a7d2a",
+                    ls="-.",
+                    lw=1.3,
+                    label=f"log-normal (LR {f.lr_lognormal:+.2f}, p = {f.p_lognormal:.2f})",
+                )
+            ax.axvline(
+                f.x_min, color="#1f4e9c", ls=":", lw=1.0, label=f"x_min = {f.x_min:.3g} (n_tail = {f.n_tail})"
+            )
+        else:
+            ax.text(0.03, 0.03, f"not fitted: {f.reason}", transform=ax.transAxes, fontsize=7)
+        det = detection_limits.get(var)
+        if det is not None and np.isfinite(det) and det > 0:
+            unit = " m" if var.endswith("_m") else ""
+            ax.axvline(det, color="#c62828", ls="--", lw=1.0, label=f"detection limit {det:.3g}{unit}")
+        ax.set_xlabel(label, fontsize=11)
+        ax.set_ylabel("P(X \u2265 x)", fontsize=11)
+        ax.set_ylim(0.5 / max(f.n, 1), 1.5)
+        ax.grid(True, which="both", lw=0.3, alpha=0.5)
+        ax.tick_params(labelsize=9)
+        # label 1-2-5 only: every minor label on a log axis spanning a few decades overlaps
+        from matplotlib.ticker import FuncFormatter
+
+        ax.xaxis.set_major_formatter(FuncFormatter(_label_125))
+        ax.xaxis.set_minor_formatter(FuncFormatter(_label_125))
+        ax.set_title(f"Cumulative frequency: {label.split(' (')[0].lower()}", fontsize=11)
+        ax.legend(fontsize=7, loc="lower left", framealpha=0.85)
+    fig.suptitle("Size distributions (LR > 0 favours the power law; Clauset et al. 2009)", fontsize=10)
+    fig.tight_layout()
+    return fig
+
+
+def _label_125(value: float, _pos=None) -> str:
+    """Tick label for 1, 2 and 5 times a power of ten; empty otherwise."""
+    if not np.isfinite(value) or value <= 0:
+        return ""
+    mant = value / 10 ** np.floor(np.log10(value) + 1e-9)
+    return f"{value:g}" if np.isclose(mant, (1.0, 2.0, 5.0), rtol=1e-6).any() else ""

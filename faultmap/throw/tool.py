@@ -1,0 +1,307 @@
+"""Tool ``throw``: throw, heave and vertical separation along every trace from the DEM.
+
+A thin wrapper: it takes the prepared ``faults`` and the lazy DEM from the
+run context, calls :func:`faultmap.throw.step.measure_throw` (batches of
+stations run through the run's engine), records the adapted parameter
+values in ``run_info`` and draws the figures.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from faultmap.errors import InputError
+from faultmap.registry import Param, Tool
+
+_FIGURES = ("throw_map.png", "throw_profiles.png", "throw_systems.png")
+
+
+def run(ctx, p: dict) -> None:
+    """Measure throw along the prepared traces and store the layers."""
+    from faultmap.throw.step import measure_throw, resolve_params
+
+    faults = ctx.faults
+    if faults is None:
+        raise InputError("throw needs the prepared 'faults' layer; run prepare first.")
+    dem = ctx.dem
+    if dem is None:
+        raise InputError("throw needs a DEM; give --dem or [inputs] dem.")
+    params = resolve_params(
+        dem.pixel_size,
+        station_spacing_m=p["station_spacing_m"],
+        profile_half_length_m=p["profile_half_length_m"],
+        scarp_halfwidth_m=p["scarp_halfwidth_m"],
+        normal_window_m=p["normal_window_m"],
+        max_half_length_m=p["max_half_length_m"],
+        min_samples_per_side=p["min_samples_per_side"],
+        robust_loss=p["robust_loss"],
+        robust_tuning=p["robust_tuning"],
+        robust_iterations=p["robust_iterations"],
+        scarp_iterations=p["scarp_iterations"],
+        far_field_widths=p["far_field_widths"],
+        memory_budget_mb=p["memory_budget_mb"],
+        smooth_stations=p["smooth_stations"],
+        min_stations_per_fault=p["min_stations_per_fault"],
+    )
+    from faultmap.throw.batches import min_batches_for
+
+    min_batches = min_batches_for(ctx.engine)
+
+    def progress(iterable, total):
+        return ctx.progress(iterable, total=total, desc="throw")
+
+    mapper = None
+    if ctx.engine is not None:
+
+        def mapper(func, batches, prog):
+            return ctx.engine.map(func, batches, progress=prog)
+
+    from faultmap.throw import kernels
+
+    if kernels.compiled_on_disk() is False:
+        ctx.info("first run in this environment: compiling faultmap's kernels (about 13 s, once).")
+    res = measure_throw(faults, dem, params=params, mapper=mapper, progress=progress, min_batches=min_batches)
+    for w in res.warnings:
+        ctx.warn(w)
+    _relink(ctx, res, params)
+    # what was used where the user left a parameter unset
+    px = dem.pixel_size
+    if p["station_spacing_m"] is None:
+        ctx.record(
+            "station_spacing_m_used",
+            f"{params.station_spacing_m:g} (10 DEM pixels; at least {params.min_stations} stations per fault, never under 2 pixels)",
+        )
+    if p["normal_window_m"] is None:
+        ctx.record("normal_window_m_used", f"{params.normal_window_m:g}")
+    if p["scarp_halfwidth_m"] is None:
+        ctx.record(
+            "scarp_halfwidth_m_used",
+            f"{params.scarp_halfwidth_m:g} (3 pixels), widened per station where the scarp is broader",
+        )
+    if p["profile_half_length_m"] is None:
+        H = res.stations["profile_half_length_m"].to_numpy(dtype=float)
+        H = H[np.isfinite(H)]
+        rng = f"{H.min():g}-{H.max():g} m, median {np.median(H):g} m" if H.size else "none"
+        ctx.record(
+            "profile_half_length_m_used",
+            f"adapted: 10 % of the trace length within {params.min_half_length_m:g}-{params.max_half_length_m:g} m, "
+            f"lengthened where the scarp is broad; used {rng}",
+        )
+    if p["max_half_length_m"] is None:
+        ctx.record(
+            "max_half_length_m_used",
+            f"{params.max_half_length_m:g} ({params.max_half_length_m / px:g} pixels)",
+        )
+    if p["robust_tuning"] is None:
+        ctx.record("robust_tuning_used", f"{params.robust_tuning:g}")
+    if p["smooth_stations"] is None:
+        used = res.faults["smooth_stations_used"].dropna()
+        ctx.record(
+            "smooth_stations_used",
+            "cross-validated per fault: "
+            + ", ".join(f"{k:g}: {int(v)} faults" for k, v in used.value_counts().sort_index().items()),
+        )
+    ctx.record("sample_step_m", f"{params.sample_step_m:g}")
+    ctx.record("n_batches", res.n_batches)
+    ctx.record("n_profile_samples", res.n_samples)
+    counts = res.stations["status"].value_counts()
+    ctx.record("station_status", ", ".join(f"{k} {int(v)}" for k, v in counts.items()))
+    n_dem = int((res.faults["dip_dir_source"] == "dem").sum())
+    ctx.info(
+        f"{len(res.stations)} stations on {len(res.faults)} faults: {int(counts.get('ok', 0))} ok; "
+        f"down-thrown side from the DEM for {n_dem} faults; {len(res.linkage_zones)} linkage zones."
+    )
+    ctx.faults = res.faults
+    ctx.layers["throw_stations"] = res.stations
+    ctx.layers["linkage_zones"] = res.linkage_zones
+    ctx.results["throw"] = res
+    if ctx.figures_enabled:
+        from faultmap.io.dem import read_overview
+        from faultmap.throw.figures import system_profiles, throw_map, throw_profiles
+
+        elev, t = read_overview(dem, max_pixels=1_000_000)
+        ctx.save_figure(throw_map(res.faults, elevation=elev, transform=t), "throw_map.png")
+        ctx.save_figure(
+            throw_profiles(res.faults, res.stations, n_largest=p["n_profile_figures"]), "throw_profiles.png"
+        )
+        ctx.save_figure(system_profiles(res.faults, res.stations, res.linkage_zones), "throw_systems.png")
+
+
+def _relink(ctx, res, params) -> None:
+    """Re-link systems once the DEM has given the dip directions prepare did not know.
+
+    ``prepare`` links segments whose dip direction is unknown on geometry alone;
+    with the down-thrown side measured, segments dipping opposite ways are split
+    (and linkage zones recomputed) with the same link parameters.
+    """
+    from faultmap.throw.step import linkage_zones
+    from faultmap.traces.conditioning import link_systems
+
+    link = ctx.results.get("prepare")
+    f = res.faults
+    if not link or not (f["dip_dir_source"] == "dem").any():
+        return
+    new = link_systems(
+        f.geometry.to_numpy(),
+        f["strike_deg"].to_numpy(dtype=float),
+        f["dip_dir_deg"].to_numpy(dtype=float),
+        link_distance_m=link["link_distance_m"],
+        link_angle_deg=link["link_angle_deg"],
+    )
+    old = f["system_id"].to_numpy()
+    if np.array_equal(new, old):
+        return
+    f["system_id"] = new
+    res.linkage_zones = linkage_zones(f, res.stations, step_m=params.station_spacing_m)
+    ctx.info("linked systems updated with the dip directions measured from the DEM.")
+
+
+TOOL = Tool(
+    name="throw",
+    summary="Throw, heave and vertical separation along every trace from the DEM.",
+    run=run,
+    requires=("prepare",),
+    inputs=("faults", "dem"),
+    params=(
+        Param(
+            "station_spacing_m",
+            float,
+            None,
+            "Distance between stations along a trace; default 10 DEM pixels (never under 2).",
+            unit="m",
+            min=0.0,
+            min_exclusive=True,
+            nullable=True,
+        ),
+        Param(
+            "profile_half_length_m",
+            float,
+            None,
+            "Fixed half-length of the profiles across the trace; default adapted per fault and lengthened where the "
+            "scarp is broad, to reach 2-3 scarp widths of undisturbed surface.",
+            unit="m",
+            min=0.0,
+            min_exclusive=True,
+            nullable=True,
+        ),
+        Param(
+            "max_half_length_m",
+            float,
+            None,
+            "Longest profile half-length the adaptation may use; default 400 pixels.",
+            unit="m",
+            min=0.0,
+            min_exclusive=True,
+            nullable=True,
+        ),
+        Param(
+            "scarp_halfwidth_m",
+            float,
+            None,
+            "Smallest half-width of the scarp zone left out of the surface fits; default 3 pixels, widened per "
+            "station where the profile departs from the far-field surface farther out.",
+            unit="m",
+            min=0.0,
+            nullable=True,
+        ),
+        Param(
+            "normal_window_m",
+            float,
+            None,
+            "Trace length over which the profile direction is averaged; default twice the station spacing "
+            "(at least 20 pixels).",
+            unit="m",
+            min=0.0,
+            min_exclusive=True,
+            nullable=True,
+        ),
+        Param(
+            "min_samples_per_side",
+            int,
+            10,
+            "Fewest valid samples a side's surface fit may use.",
+            min=3,
+            max=10000,
+        ),
+        Param(
+            "robust_loss",
+            str,
+            "tukey",
+            "Weight function of the robust surface fits.",
+            choices=("tukey", "huber", "none"),
+        ),
+        Param(
+            "robust_tuning",
+            float,
+            None,
+            "Tuning constant of the weights in robust scale units; default 4.685 (Tukey) or 1.345 (Huber).",
+            unit="sigma",
+            min=0.5,
+            max=20.0,
+            nullable=True,
+        ),
+        Param("robust_iterations", int, 3, "Minimum reweighting passes of each robust fit (the noise scale is re-estimated on these; the fit then runs until the line converges, at most 10 passes).", min=0, max=50),
+        Param(
+            "scarp_iterations", int, 3, "Scarp-zone refinements (edge detection and refit).", min=0, max=10
+        ),
+        Param(
+            "far_field_widths",
+            float,
+            2.5,
+            "Undisturbed surface fitted on each side, in scarp widths.",
+            min=0.5,
+            max=20.0,
+        ),
+        Param(
+            "smooth_stations",
+            float,
+            None,
+            "Along-strike smoothing of the throw profile (Gaussian sigma, in stations; 0 = none); "
+            "default chosen per fault by cross-validation.",
+            unit="stations",
+            min=0.0,
+            max=20.0,
+            nullable=True,
+        ),
+        Param(
+            "min_stations_per_fault",
+            int,
+            24,
+            "Short faults get a finer station spacing (never under 2 pixels) so that each has at least this many "
+            "stations.",
+            min=1,
+            max=1000,
+        ),
+        Param(
+            "memory_budget_mb",
+            float,
+            512.0,
+            "Memory for the DEM windows and sample arrays of one batch (each thread or worker runs one batch at a time).",
+            unit="MB",
+            min=16.0,
+        ),
+        Param(
+            "n_profile_figures",
+            int,
+            6,
+            "Largest faults drawn in the along-strike profile figure.",
+            min=1,
+            max=48,
+        ),
+    ),
+    layers=("faults", "throw_stations", "linkage_zones"),
+    figures=_FIGURES,
+    description=(
+        "Stations every station_spacing_m along each trace, with the normal averaged over normal_window_m. At each "
+        "station a profile across the trace is sampled every pixel by bilinear interpolation of the DEM (voids stay "
+        "void); another trace crossing the profile stops it short of the crossing. Beyond a scarp zone found from "
+        "the profile's excess gradient, the footwall and hanging-wall surfaces are fitted on 2-3 scarp widths "
+        "(McCalpin 1987 practice) by iteratively reweighted least squares (Tukey biweight; Holland & Welsch 1977) and "
+        "projected to the trace: their difference is the vertical separation, converted to throw with the fitted "
+        "surface slope and the fault dip (Caskey 1995); heave = throw / tan(dip). Each station has a status (ok, "
+        "outside, truncated, nodata, poor_fit). Per fault: maximum throw of the robustly smoothed along-strike "
+        "profile (Hampel filter, local quadratic regression) with its error and position, mean throw, heave "
+        "integral, tip gradients; the down-thrown side is inferred from the DEM where no dip direction is given. "
+        "Throw minima between the segments of linked systems are written as linkage zones."
+    ),
+)

@@ -1,0 +1,392 @@
+"""Trace conditioning: geometry clean-up, attributes, strike, censoring, linkage.
+
+Pure functions on GeoDataFrames in a projected metric working CRS. The tool
+wrapper (:mod:`faultmap.traces.tool`) reads the files and reprojects.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import shapely
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import connected_components
+
+from faultmap.errors import GeometryError, InputError
+from faultmap.numerics.directions import axial_mean_deg, segment_azimuths
+
+__all__ = [
+    "DEFAULT_FIELDS",
+    "condition_traces",
+    "segment_azimuths",
+    "axial_mean_deg",
+    "strike_from_geometry",
+    "orient_traces",
+    "censor_flags",
+    "link_systems",
+]
+
+#: Input attribute names (conventions); remappable with ``[fields]``.
+DEFAULT_FIELDS = {"name": "name", "dip": "dip", "dip_dir": "dip_dir", "active": "active", "surface_age_ka": "surface_age_ka"}
+
+
+def strike_from_geometry(lines, dip_dir_deg=None) -> np.ndarray:
+    """Right-hand-rule strike of each line, length-weighted over its segments.
+
+    Where the dip direction is known the strike is the axis direction that
+    puts the dip direction on its right (``dip_dir = strike + 90``); where it
+    is unknown (NaN) the axis is returned in [0, 180).
+    """
+    lines = np.asarray(lines)
+    li, az, ln = segment_azimuths(lines)
+    axis = axial_mean_deg(az, ln, li, len(lines))
+    if dip_dir_deg is None:
+        return axis
+    dd = np.asarray(dip_dir_deg, dtype=float)
+    want = (dd - 90.0) % 360.0
+    alt = (axis + 180.0) % 360.0
+    d1 = np.abs((axis - want + 180.0) % 360.0 - 180.0)
+    d2 = np.abs((alt - want + 180.0) % 360.0 - 180.0)
+    return np.where(np.isnan(dd), axis, np.where(d1 <= d2, axis, alt))
+
+
+def orient_traces(lines, strike_deg) -> np.ndarray:
+    """Reverse lines so that each runs along its strike direction.
+
+    The start-to-end vector is put within 90 degrees of the strike, so the
+    stored trace direction no longer depends on how it was digitised.
+    """
+    lines = np.asarray(lines)
+    start = shapely.get_coordinates(shapely.get_point(lines, 0))
+    end = shapely.get_coordinates(shapely.get_point(lines, -1))
+    d = end - start
+    s = np.radians(np.asarray(strike_deg, dtype=float))
+    along = d[:, 0] * np.sin(s) + d[:, 1] * np.cos(s)
+    flip = along < 0
+    out = lines.copy()
+    if flip.any():
+        out[flip] = shapely.reverse(lines[flip])
+    return out
+
+
+def _numeric(series: pd.Series, *, field: str, ids, where: str) -> np.ndarray:
+    vals = pd.to_numeric(series, errors="coerce")
+    bad = vals.isna() & series.notna() & (series.astype(str).str.strip() != "")
+    if bad.any():
+        i = int(np.flatnonzero(bad.to_numpy())[0])
+        raise InputError(
+            f"{where}: feature {ids[i]}: field '{field}' is {series.iloc[i]!r}, not a number; fix the attribute."
+        )
+    return vals.to_numpy(dtype=float)
+
+
+def _bool(series: pd.Series, *, field: str, ids, where: str) -> np.ndarray:
+    s = series.astype(object)
+    out = np.zeros(len(s), dtype=bool)
+    for value, positions in s.groupby(s.map(lambda v: str(v).strip().lower()), dropna=False).indices.items():
+        if value in ("1", "1.0", "true", "yes", "y", "t"):
+            out[positions] = True
+        elif value in ("0", "0.0", "false", "no", "n", "f", "", "none", "nan", "<na>"):
+            pass
+        else:
+            raise InputError(
+                f"{where}: feature {ids[positions[0]]}: field '{field}' is {value!r}; use 1/0 or true/false."
+            )
+    return out
+
+
+def condition_traces(
+    gdf: gpd.GeoDataFrame,
+    *,
+    fields: dict | None = None,
+    dip_deg: float = 60.0,
+    where: str = "faults",
+) -> tuple[gpd.GeoDataFrame, list[str]]:
+    """Clean traces and derive the per-fault attributes of the conventions.
+
+    Parameters
+    ----------
+    gdf : geopandas.GeoDataFrame
+        Raw traces in the projected metric working CRS.
+    fields : dict, optional
+        Mapping of conventional names (``name``, ``dip``, ``dip_dir``,
+        ``active``, ``surface_age_ka``) to the input's field names.
+    dip_deg : float
+        Dip used where the ``dip`` attribute is missing, degrees (default 60,
+        Andersonian common practice).
+    where : str
+        File and layer, for messages.
+
+    Returns
+    -------
+    faults : geopandas.GeoDataFrame
+        One row per single-part trace, oriented along its right-hand-rule
+        strike, with ``fault_id``, ``source_fid``, ``name``, ``length_m``,
+        ``strike_deg``, ``dip_deg``, ``dip_source``, ``dip_dir_deg``,
+        ``dip_dir_source``, ``active``, ``surface_age_ka``.
+    warnings : list of str
+        Dropped features and defaults used.
+
+    Raises
+    ------
+    GeometryError
+        Points or polygons among the features, or no usable line left.
+    InputError
+        Attribute values out of range or of the wrong type.
+    """
+    warnings: list[str] = []
+    f = dict(DEFAULT_FIELDS)
+    f.update(fields or {})
+    gdf = gdf.reset_index(drop=True)
+    fid = np.arange(1, len(gdf) + 1)
+    geoms = gdf.geometry.to_numpy()
+    missing = shapely.is_missing(geoms) | shapely.is_empty(geoms)
+    types = shapely.get_type_id(geoms)
+    # 1 LineString, 2 LinearRing, 5 MultiLineString; 0/4 points, 3/6 polygons, 7 collections
+    wrong = ~missing & ~np.isin(types, (1, 2, 5))
+    if wrong.any():
+        kinds = sorted({shapely.get_type_id(g) for g in geoms[wrong]})
+        names = {0: "Point", 3: "Polygon", 4: "MultiPoint", 6: "MultiPolygon", 7: "GeometryCollection"}
+        ids = ", ".join(str(i) for i in fid[wrong][:10])
+        raise GeometryError(
+            f"{where}: features {ids}{' ...' if wrong.sum() > 10 else ''} are "
+            f"{'/'.join(names.get(k, str(k)) for k in kinds)}, not lines; give a line layer of fault traces."
+        )
+    if missing.any():
+        warnings.append(f"{where}: dropped {int(missing.sum())} features with empty geometry: {_ids(fid[missing])}.")
+    keep = ~missing
+    base = gdf.loc[keep].copy()
+    base["source_fid"] = fid[keep]
+    geoms2d = shapely.force_2d(base.geometry.to_numpy())
+    # parts of one feature that share an end point are one trace digitised in pieces: join them
+    multi = shapely.get_type_id(geoms2d) == 5
+    if multi.any():
+        before = shapely.get_num_geometries(geoms2d[multi])
+        geoms2d[multi] = shapely.line_merge(geoms2d[multi])
+        joined = int((before - shapely.get_num_geometries(geoms2d[multi])).sum())
+        if joined:
+            warnings.append(f"{where}: joined {joined} parts of multi-part features that meet end to end.")
+    base = base.set_geometry(geoms2d)
+    parts = base.explode(index_parts=False, ignore_index=True)
+    if len(parts) > len(base):
+        warnings.append(f"{where}: split {len(parts) - len(base)} extra parts of multi-part features into traces.")
+    lines = parts.geometry.to_numpy()
+    lines = shapely.remove_repeated_points(lines, 0.0)
+    length = shapely.length(lines)
+    zero = ~(length > 0) | (shapely.get_num_points(lines) < 2)
+    if zero.all():
+        raise GeometryError(f"{where}: every trace has zero length; check the layer's geometries and CRS.")
+    if zero.any():
+        warnings.append(
+            f"{where}: dropped {int(zero.sum())} zero-length traces (features {_ids(parts['source_fid'].to_numpy()[zero])})."
+        )
+    parts = parts.loc[~zero].reset_index(drop=True)
+    lines = lines[~zero]
+    norm = shapely.to_wkb(shapely.normalize(lines))
+    dup = pd.Series(norm).duplicated().to_numpy()
+    if dup.any():
+        warnings.append(
+            f"{where}: removed {int(dup.sum())} exact duplicate traces (features {_ids(parts['source_fid'].to_numpy()[dup])})."
+        )
+    parts = parts.loc[~dup].reset_index(drop=True)
+    lines = lines[~dup]
+    ids = parts["source_fid"].to_numpy()
+    n = len(parts)
+
+    def col(key):
+        name = f.get(key)
+        return parts[name] if name and name in parts.columns else None
+
+    dip_raw = col("dip")
+    dip = np.full(n, np.nan) if dip_raw is None else _numeric(dip_raw, field=f["dip"], ids=ids, where=where)
+    bad = ~np.isnan(dip) & ~((dip > 0) & (dip <= 90))
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise InputError(
+            f"{where}: feature {ids[i]}: dip {dip[i]:g} is outside 0-90 degrees (exclusive of 0); fix field '{f['dip']}'."
+        )
+    dip_source = np.where(np.isnan(dip), "default", "attribute")
+    if np.isnan(dip).any():
+        warnings.append(f"{where}: default dip {dip_deg:g} deg used for {int(np.isnan(dip).sum())} of {n} traces.")
+    dip = np.where(np.isnan(dip), dip_deg, dip)
+
+    dd_raw = col("dip_dir")
+    dd = np.full(n, np.nan) if dd_raw is None else _numeric(dd_raw, field=f["dip_dir"], ids=ids, where=where)
+    bad = ~np.isnan(dd) & ~((dd >= 0) & (dd <= 360))
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise InputError(f"{where}: feature {ids[i]}: dip direction {dd[i]:g} is outside 0-360; fix field '{f['dip_dir']}'.")
+    dd = dd % 360.0
+    dd_source = np.where(np.isnan(dd), "unknown", "attribute")
+
+    age_raw = col("surface_age_ka")
+    age = np.full(n, np.nan) if age_raw is None else _numeric(age_raw, field=f["surface_age_ka"], ids=ids, where=where)
+    act_raw = col("active")
+    active = np.zeros(n, dtype=bool) if act_raw is None else _bool(act_raw, field=f["active"], ids=ids, where=where)
+    name_raw = col("name")
+    names = (
+        np.array([""] * n, dtype=object)
+        if name_raw is None
+        else name_raw.astype(object).where(name_raw.notna(), "").astype(str).to_numpy(dtype=object)
+    )
+
+    strike = strike_from_geometry(lines, dd)
+    # dip direction disagreeing with the trace (more than 45 deg off the normal) is a user error worth a warning
+    axis = strike_from_geometry(lines)
+    off = np.abs(((dd - axis) % 180.0) - 90.0)
+    skew = ~np.isnan(dd) & (off > 45.0)
+    if skew.any():
+        warnings.append(
+            f"{where}: dip direction is more than 45 deg from the trace normal for features {_ids(ids[skew])}; check field '{f['dip_dir']}'."
+        )
+    lines = orient_traces(lines, strike)
+    # recompute from the oriented traces so the result is bit-identical whatever the digitising direction
+    strike = strike_from_geometry(lines, dd)
+    out = gpd.GeoDataFrame(
+        {
+            "fault_id": np.arange(1, n + 1, dtype=np.int64),
+            "source_fid": ids.astype(np.int64),
+            "name": names,
+            "length_m": shapely.length(lines),
+            "strike_deg": strike,
+            "dip_deg": dip,
+            "dip_source": dip_source,
+            "dip_dir_deg": dd,
+            "dip_dir_source": dd_source,
+            "active": active,
+            "surface_age_ka": age,
+        },
+        geometry=lines,
+        crs=gdf.crs,
+    )
+    return out, warnings
+
+
+def censor_flags(
+    lines,
+    *,
+    tolerance_m: float,
+    dem_bounds: tuple[float, float, float, float] | None = None,
+    sampler: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None,
+    study_area=None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Which traces end near the edge of the mapped area.
+
+    A trace is censored (its length is a lower bound) when either tip lies
+    within ``tolerance_m`` of the DEM's edge, of a nodata area of the DEM, or
+    of the study-area boundary, or outside them.
+
+    Parameters
+    ----------
+    lines : array_like of LineString
+    tolerance_m : float
+        Distance within which a tip counts as at the edge, metres.
+    dem_bounds : tuple, optional
+        (xmin, ymin, xmax, ymax) of the DEM.
+    sampler : callable, optional
+        ``sampler(x, y) -> elevations`` with NaN for voids (e.g.
+        :meth:`faultmap.io.dem.Dem.sample`); tips are tested on a ring of 8
+        points at ``tolerance_m`` plus the tip itself.
+    study_area : shapely geometry, optional
+        Polygon(s) of the mapped area.
+
+    Returns
+    -------
+    censored : ndarray of bool
+    reason : ndarray of str
+        ``dem_edge``, ``nodata``, ``study_area`` or empty.
+    """
+    lines = np.asarray(lines)
+    n = len(lines)
+    tips = np.stack(
+        [shapely.get_coordinates(shapely.get_point(lines, 0)), shapely.get_coordinates(shapely.get_point(lines, -1))],
+        axis=1,
+    )  # (n, 2, 2)
+    reason = np.full(n, "", dtype=object)
+    if study_area is not None:
+        pts = shapely.points(tips.reshape(-1, 2))
+        boundary = shapely.boundary(study_area)
+        near = (shapely.distance(pts, boundary) <= tolerance_m) | ~shapely.contains(study_area, pts)
+        hit = near.reshape(n, 2).any(axis=1)
+        reason[hit] = "study_area"
+    if dem_bounds is not None:
+        xmin, ymin, xmax, ymax = dem_bounds
+        x, y = tips[..., 0], tips[..., 1]
+        d = np.minimum.reduce([x - xmin, xmax - x, y - ymin, ymax - y])
+        hit = (d <= tolerance_m).any(axis=1)
+        reason[hit & (reason == "")] = "dem_edge"
+    if sampler is not None:
+        ang = np.radians(np.arange(0, 360, 45))
+        ring = np.concatenate([[[0.0, 0.0]], tolerance_m * np.c_[np.sin(ang), np.cos(ang)]])  # (9, 2)
+        pts = tips[:, :, None, :] + ring[None, None, :, :]  # (n, 2, 9, 2)
+        z = np.asarray(sampler(pts[..., 0].ravel(), pts[..., 1].ravel())).reshape(n, 2, 9)
+        hit = np.isnan(z).any(axis=(1, 2))
+        reason[hit & (reason == "")] = "nodata"
+    return reason != "", reason
+
+
+def link_systems(
+    lines,
+    strike_deg,
+    dip_dir_deg,
+    *,
+    link_distance_m: float,
+    link_angle_deg: float,
+) -> np.ndarray:
+    """Group traces into linked systems (segments of one fault system).
+
+    Two traces are linked when they are along-strike neighbours: a tip of one
+    lies within ``link_distance_m`` of a tip of the other, their extents along
+    the common strike overlap by less than half the shorter trace (so
+    side-by-side parallel faults are not linked, while en-echelon segments
+    with a relay zone are), their strikes differ by less than
+    ``link_angle_deg`` (as axes, modulo 180) and their dip directions agree
+    (differ by less than 90 deg) or one is unknown. Links are transitive.
+
+    Returns
+    -------
+    ndarray of int
+        ``system_id`` per trace, 1-based, numbered by the smallest trace
+        index in each system (so the numbering is stable).
+    """
+    lines = np.asarray(lines)
+    n = len(lines)
+    if n == 0:
+        return np.zeros(0, dtype=np.int64)
+    start = shapely.get_coordinates(shapely.get_point(lines, 0))
+    end = shapely.get_coordinates(shapely.get_point(lines, -1))
+    tips = shapely.points(np.concatenate([start, end]))
+    owner = np.r_[np.arange(n), np.arange(n)]
+    tree = shapely.STRtree(tips)
+    ti, tj = tree.query(tips, predicate="dwithin", distance=link_distance_m)
+    a, b = owner[ti], owner[tj]
+    keep = a < b
+    a, b = a[keep], b[keep]
+    s = np.asarray(strike_deg, dtype=float)
+    ds = np.abs(((s[a] - s[b]) + 90.0) % 180.0 - 90.0)
+    dd = np.asarray(dip_dir_deg, dtype=float)
+    ddiff = np.abs(((dd[a] - dd[b]) + 180.0) % 360.0 - 180.0)
+    agree = np.isnan(ddiff) | (ddiff < 90.0)
+    # extents along the strike of the first trace of each pair
+    u = np.c_[np.sin(np.radians(s[a])), np.cos(np.radians(s[a]))]
+    pa = np.c_[(start[a] * u).sum(1), (end[a] * u).sum(1)]
+    pb = np.c_[(start[b] * u).sum(1), (end[b] * u).sum(1)]
+    overlap = np.minimum(pa.max(1), pb.max(1)) - np.maximum(pa.min(1), pb.min(1))
+    shorter = np.minimum(np.ptp(pa, axis=1), np.ptp(pb, axis=1))
+    ok = (ds < link_angle_deg) & agree & (overlap < 0.5 * shorter)
+    a, b = a[ok], b[ok]
+    a, b = np.unique(np.c_[a, b], axis=0).T if len(a) else (a, b)
+    graph = coo_matrix((np.ones(len(a)), (a, b)), shape=(n, n))
+    _, labels = connected_components(graph, directed=False)
+    first = np.full(labels.max() + 1, n)
+    np.minimum.at(first, labels, np.arange(n))
+    rank = np.argsort(np.argsort(first))
+    return (rank[labels] + 1).astype(np.int64)
+
+
+def _ids(values, limit: int = 10) -> str:
+    v = [str(x) for x in np.asarray(values)[:limit]]
+    return ", ".join(v) + (" ..." if len(values) > limit else "")

@@ -1,0 +1,119 @@
+"""Tool ``prepare``: validate and condition fault traces.
+
+Reads nothing itself: the runner has loaded the traces (in the working CRS),
+the lazy DEM and the optional study area into the context.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from faultmap.errors import InputError
+from faultmap.registry import Param, Tool
+from faultmap.traces.conditioning import censor_flags, condition_traces, link_systems
+
+
+def run(ctx, p: dict) -> None:
+    """Condition ``ctx.raw_faults`` into the ``faults`` layer."""
+    raw = ctx.raw_faults
+    where = raw.attrs.get("source", "faults")
+    faults, warns = condition_traces(raw, fields=ctx.fields, dip_deg=p["dip_deg"], where=where)
+    for w in warns:
+        ctx.warn(w)
+    lines = faults.geometry.to_numpy()
+    dem = ctx.dem
+    tol = p["censor_tolerance_m"]
+    if tol is None:
+        tol = 2.0 * dem.pixel_size if dem is not None else 0.0
+        ctx.record("censor_tolerance_m_used", tol)
+    sampler = None
+    bounds = None
+    if dem is not None:
+        bounds = dem.bounds
+        sampler = dem.sample
+        import shapely
+
+        dem_box = shapely.box(*bounds)
+        inside = shapely.intersects(lines, dem_box)
+        if not inside.any():
+            raise InputError(
+                f"{where}: no trace overlaps the DEM {dem.path} (DEM bounds {tuple(round(b) for b in bounds)} "
+                f"in {ctx.crs.name}); check that both cover the same area and CRS."
+            )
+        if (~inside).any():
+            ctx.warn(
+                f"{int((~inside).sum())} traces lie entirely outside the DEM (fault_id "
+                f"{', '.join(map(str, faults['fault_id'].to_numpy()[~inside][:10]))}); they get no throw."
+            )
+        # a DEM that is void along every trace cannot measure anything
+        probe = shapely.line_interpolate_point(lines[inside], np.linspace(0, 1, 9)[:, None], normalized=True).ravel()
+        xy = shapely.get_coordinates(probe)
+        z = sampler(xy[:, 0], xy[:, 1])
+        if np.isnan(z).all():
+            raise InputError(
+                f"{dem.path}: the DEM has no valid elevations along any trace (all nodata); "
+                "check the nodata value (--dem-nodata) or the DEM file."
+            )
+    area = None
+    if ctx.study_area is not None:
+        area = ctx.study_area.geometry.union_all()
+    censored, reason = censor_flags(lines, tolerance_m=tol, dem_bounds=bounds, sampler=sampler, study_area=area)
+    faults["censored"] = censored
+    faults["censor_reason"] = reason.astype(str)
+    faults["system_id"] = link_systems(
+        lines,
+        faults["strike_deg"].to_numpy(),
+        faults["dip_dir_deg"].to_numpy(),
+        link_distance_m=p["link_distance_m"],
+        link_angle_deg=p["link_angle_deg"],
+    )
+    n_sys = int((np.bincount(faults["system_id"]) > 1).sum())
+    ctx.info(
+        f"{len(faults)} traces, {int(censored.sum())} censored, {n_sys} linked systems of several segments."
+    )
+    ctx.record("n_traces", len(faults))
+    # kept so that throw can re-link systems once it knows every dip direction
+    ctx.results["prepare"] = {"link_distance_m": p["link_distance_m"], "link_angle_deg": p["link_angle_deg"]}
+    ctx.faults = faults
+
+
+TOOL = Tool(
+    name="prepare",
+    summary="Validate and condition traces: CRS, geometry, attributes, strike, censoring, linkage.",
+    run=run,
+    requires=(),
+    inputs=("faults",),
+    optional_inputs=("dem", "study_area"),
+    params=(
+        Param(
+            "dip_deg", float, 60.0,
+            "Dip used where the dip attribute is missing (Andersonian normal fault, common practice).",
+            unit="deg", min=0.0, max=90.0, min_exclusive=True,
+        ),
+        Param(
+            "censor_tolerance_m", float, None,
+            "A trace tip this close to the DEM edge, a nodata area or the study-area boundary marks the trace "
+            "censored (its length is a minimum). Default: 2 DEM pixels.",
+            unit="m", min=0.0, nullable=True,
+        ),
+        Param(
+            "link_distance_m", float, 1000.0,
+            "Traces whose tip lies within this distance of another trace are linked into one system.",
+            unit="m", min=0.0,
+        ),
+        Param(
+            "link_angle_deg", float, 20.0,
+            "Linked traces must differ in strike by less than this angle (and dip the same way).",
+            unit="deg", min=0.0, max=90.0,
+        ),
+    ),
+    layers=("faults",),
+    figures=(),
+    description=(
+        "Explodes multi-part lines, drops empty and zero-length parts (warning), rejects points and polygons, "
+        "drops Z/M, removes exact duplicates, computes length in the working CRS, right-hand-rule strike "
+        "(length-weighted axial mean of segment azimuths, Mardia & Jupp 2000), dip and dip direction with "
+        "their sources, a stable fault_id, censoring at the mapped area's edges, and linked systems. "
+        "Traces are stored oriented along their strike, so digitising direction never matters."
+    ),
+)
