@@ -1,6 +1,6 @@
 """End-to-end validation of faultmap on larger unseen scenes (a script, not a test).
 
-The same checks as ``tests/test_validation.py`` on bigger versions of the
+The same checks as ``tests/chain/test_validation.py`` on bigger versions of the
 same fictional scenes (``tests/scenes.py``: finer pixels, more faults), plus
 a sensitivity scene and the demo area at full size, printed as a table:
 

@@ -22,7 +22,7 @@ cannot be imported or ``FAULTMAP_NO_JIT=1`` is set):
 
 The first six repeat the reference's float32 arithmetic operation by
 operation and accumulate every sum sample by sample in the same order, so
-they return the same numbers (``tests/test_kernels.py`` compares them). The
+they return the same numbers (``tests/throw/test_kernels.py`` compares them). The
 smoothing kernel sums station by station where its reference uses matrix
 products, so it agrees to rounding, with the same outliers and widths. Each profile
 is handled on its own, so results never depend on how the work was
@@ -1094,7 +1094,7 @@ def smooth_stations(group, Tc, sec, Kcv, Kf, n_g, cv_tie):
     the predicted one left out, ``Kf`` (2J + 1, m) the same kernels for the
     final fit; with ``Kcv`` None every group takes column 0 of ``Kf``. Sums
     run station by station (the array code uses matrix products), so the
-    results agree with it to rounding (``tests/test_kernels.py``).
+    results agree with it to rounding (``tests/throw/test_kernels.py``).
 
     Returns
     -------

@@ -14,7 +14,7 @@ from faultmap.registry import BrokenTool, Param, Tool, load_tools, not_available
 from faultmap.runner import run_tools
 
 TOOLS = load_tools()
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 
 
 def _toml_value(v):
