@@ -47,7 +47,7 @@ def _input_options() -> list[click.Option]:
         click.Option(["--faults-layer"], help="Layer of the traces in a multi-layer file."),
         click.Option(["--dem"], type=click.Path(dir_okay=False), help="DEM: any raster GDAL reads (projected, metric)."),
         click.Option(["--dem-nodata"], type=float, help="DEM void value when the file declares none."),
-        click.Option(["--dem-z-factor"], type=float, help="Multiplier from DEM units to metres (0.3048 for feet)."),
+        click.Option(["--dem-metres-per-unit"], type=float, help="Metres per DEM elevation unit (0.3048 for a DEM stored in feet)."),
         click.Option(["--transects"], type=click.Path(dir_okay=False), help="Transect lines (optional)."),
         click.Option(["--transects-layer"], help="Layer of the transects."),
         click.Option(["--study-area"], type=click.Path(dir_okay=False), help="Study-area polygons (optional)."),
@@ -125,7 +125,7 @@ def tool_command(tool: Tool | BrokenTool, state: _State) -> click.Command:
             given = {p.name: kw[p.name] for p in tool.params if kw.get(p.name) is not None}
             inputs = {
                 k: kw[k]
-                for k in ("faults", "faults_layer", "dem", "dem_nodata", "dem_z_factor", "transects",
+                for k in ("faults", "faults_layer", "dem", "dem_nodata", "dem_metres_per_unit", "transects",
                           "transects_layer", "study_area", "study_area_layer", "crs")
                 if kw.get(k) is not None
             }

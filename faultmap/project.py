@@ -88,7 +88,7 @@ def read_project(path, *, tools: dict | None = None) -> dict:
     for k in data:
         if k not in valid_top:
             raise ProjectFileError(f"{path}: unknown key '{k}'; valid: {', '.join(valid_top)}.")
-    inputs = _check_table(data.get("inputs", {}), INPUT_KEYS | {"dem_nodata": float, "dem_z_factor": float}, "inputs", path)
+    inputs = _check_table(data.get("inputs", {}), INPUT_KEYS | {"dem_nodata": float, "dem_metres_per_unit": float}, "inputs", path)
     for k in _PATH_KEYS & set(inputs):
         inputs[k] = str((base / inputs[k]).resolve()) if not Path(inputs[k]).is_absolute() else inputs[k]
     if "faults" not in inputs:

@@ -32,7 +32,7 @@ INPUT_KEYS = {
     "faults_layer": str,
     "dem": str,
     "dem_nodata": float,
-    "dem_z_factor": float,
+    "dem_metres_per_unit": float,
     "transects": str,
     "transects_layer": str,
     "study_area": str,
@@ -202,7 +202,7 @@ def _load_inputs(ctx: RunContext, inputs: dict, needed: set[str]) -> None:
             raise InputError(f"input '{kind}' is required by the tools asked for; give --{kind.replace('_', '-')} or [inputs] {kind}.")
     crs_override = inputs.get("crs")
     if "dem" in inputs:
-        ctx.dem = open_dem(inputs["dem"], nodata=inputs.get("dem_nodata"), z_factor=inputs.get("dem_z_factor", 1.0))
+        ctx.dem = open_dem(inputs["dem"], nodata=inputs.get("dem_nodata"), metres_per_unit=inputs.get("dem_metres_per_unit", 1.0))
         check_metric(ctx.dem.crs, where=str(inputs["dem"]))
         ctx.crs = ctx.dem.crs
     if "faults" in inputs:

@@ -42,7 +42,7 @@ class Dem:
         Raster size in pixels.
     nodata : float or None
         Value treated as void (from the file, or named by the user).
-    z_factor : float
+    metres_per_unit : float
         Multiplier that turns stored elevations into metres (0.3048 for feet).
     band : int
         Band read (1-based).
@@ -54,7 +54,7 @@ class Dem:
     width: int
     height: int
     nodata: float | None
-    z_factor: float = 1.0
+    metres_per_unit: float = 1.0
     band: int = 1
     block_shape: tuple[int, int] = (256, 256)
     _extra_voids: tuple[float, ...] = field(default=(), repr=False)
@@ -120,8 +120,8 @@ class Dem:
             mask |= arr == v
         mask |= ~np.isfinite(arr)
         arr[mask] = np.nan
-        if self.z_factor != 1.0:
-            arr *= self.z_factor
+        if self.metres_per_unit != 1.0:
+            arr *= self.metres_per_unit
         return arr
 
     def read_window(self, bounds, pad_pixels: int = 2):
@@ -171,7 +171,7 @@ class Dem:
         Returns
         -------
         ndarray of float64
-            Elevation in metres (after ``z_factor``).
+            Elevation in metres (after ``metres_per_unit``).
         """
         x = np.asarray(x, dtype="float64").ravel()
         y = np.asarray(y, dtype="float64").ravel()
@@ -236,7 +236,7 @@ def bilinear(arr: np.ndarray, row: np.ndarray, col: np.ndarray) -> np.ndarray:
     return vals
 
 
-def open_dem(path, *, nodata: float | None = None, z_factor: float = 1.0, band: int = 1) -> Dem:
+def open_dem(path, *, nodata: float | None = None, metres_per_unit: float = 1.0, band: int = 1) -> Dem:
     """Open a DEM lazily: read its metadata, never its pixels.
 
     Parameters
@@ -245,7 +245,7 @@ def open_dem(path, *, nodata: float | None = None, z_factor: float = 1.0, band: 
         Any raster GDAL reads.
     nodata : float, optional
         Void value to use when the file has none (or to override it).
-    z_factor : float
+    metres_per_unit : float
         Multiplier turning stored elevations into metres (0.3048 for feet).
     band : int
         1-based band number.
@@ -273,8 +273,8 @@ def open_dem(path, *, nodata: float | None = None, z_factor: float = 1.0, band: 
             block = tuple(src.block_shapes[band - 1])
     except rasterio.errors.RasterioIOError as exc:
         raise InputFileError(f"{p}: not a raster GDAL can read ({str(exc).splitlines()[0]}).") from exc
-    if not (z_factor > 0 and math.isfinite(z_factor)):
-        raise InputError(f"{p}: z factor must be a positive number, got {z_factor}.")
+    if not (metres_per_unit > 0 and math.isfinite(metres_per_unit)):
+        raise InputError(f"{p}: metres per DEM elevation unit must be a positive number (0.3048 for a DEM in feet), got {metres_per_unit}.")
     if transform.b != 0 or transform.d != 0:
         raise InputError(f"{p}: rotated rasters are not supported; warp the DEM north-up first.")
     if crs is None:
@@ -296,7 +296,7 @@ def open_dem(path, *, nodata: float | None = None, z_factor: float = 1.0, band: 
         width=int(width),
         height=int(height),
         nodata=None if nd is None else float(nd),
-        z_factor=float(z_factor),
+        metres_per_unit=float(metres_per_unit),
         band=int(band),
         block_shape=block,
         _extra_voids=extra,
@@ -342,7 +342,7 @@ def read_window_array(
     Returns
     -------
     array : ndarray, shape (rows, cols)
-        Elevations in metres (after ``z_factor``), NaN where void; (0, 0)
+        Elevations in metres (after ``metres_per_unit``), NaN where void; (0, 0)
         when the bounds miss the raster.
     transform : affine.Affine
         Pixel-corner transform of the window.
@@ -389,8 +389,8 @@ def read_window_array(
     ):
         # the common case (a float32 GeoTIFF): voids and +-inf to NaN in one compiled pass
         kernels.voids_to_nan(raw, sorted(set(voids)))
-        if dem.z_factor != 1.0:
-            raw *= np.float32(dem.z_factor)
+        if dem.metres_per_unit != 1.0:
+            raw *= np.float32(dem.metres_per_unit)
         return raw, win_transform(w, dem.transform), (rows.start, cols.start)
     bad = mask
     tmp = None
@@ -417,8 +417,8 @@ def read_window_array(
         arr = arr.copy()
     if bad is not None and bad.any():
         np.putmask(arr, bad, np.nan)
-    if dem.z_factor != 1.0:
-        arr *= arr.dtype.type(dem.z_factor)
+    if dem.metres_per_unit != 1.0:
+        arr *= arr.dtype.type(dem.metres_per_unit)
     return arr, win_transform(w, dem.transform), (rows.start, cols.start)
 
 
@@ -463,7 +463,7 @@ def read_overview(dem: Dem, *, max_pixels: int = 2_000_000, bounds=None):
             bad |= raw == v
     arr = np.asarray(raw, dtype="float32")
     arr[bad | ~np.isfinite(arr)] = np.nan
-    if dem.z_factor != 1.0:
-        arr *= np.float32(dem.z_factor)
+    if dem.metres_per_unit != 1.0:
+        arr *= np.float32(dem.metres_per_unit)
     t = win_transform(window, dem.transform) @ rasterio.Affine.scale(w / ow, h / oh)
     return arr, t

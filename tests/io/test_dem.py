@@ -68,8 +68,8 @@ def test_tiled_sampling_equals_one_window(tmp_path):
     np.testing.assert_allclose(dem.sample(x, y, max_window_pixels=64 * 64), dem.sample(x, y), equal_nan=True)
 
 
-def test_z_factor_and_errors(tmp_path):
-    dem = open_dem(write_dem(tmp_path / "p.tif", _plane()), z_factor=0.3048)  # feet -> metres (exact, NIST)
+def test_metres_per_unit_and_errors(tmp_path):
+    dem = open_dem(write_dem(tmp_path / "p.tif", _plane()), metres_per_unit=0.3048)  # feet -> metres (exact, NIST)
     ref = open_dem(write_dem(tmp_path / "q.tif", _plane()))
     x, y = [X0 + 333.0], [Y0 - 222.0]
     assert dem.sample(x, y)[0] == pytest.approx(ref.sample(x, y)[0] * 0.3048)

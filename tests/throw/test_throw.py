@@ -507,14 +507,14 @@ def test_fault_wholly_outside_and_no_overlap(tmp_path):
 
 
 def test_dem_in_feet_scales(tmp_path):
-    # units: a DEM stored in feet read with z_factor 0.3048 gives the same throws in metres
+    # units: a DEM stored in feet read with metres_per_unit 0.3048 gives the same throws in metres
     # (flat surface, so the Caskey correction is 1 and the scaling is exact)
     z_m = analytic_scarp(100, 160, x_fault=800.0, throw=6.0, dip=60.0, theta=0.0)
     t_m = write_tif(tmp_path / "m.tif", z_m)
     t_ft = write_tif(tmp_path / "ft.tif", z_m / 0.3048)
     f = one_fault(800.0, 100.0, 900.0)
     a = measure_throw(f, open_dem(t_m)).stations
-    b = measure_throw(f, open_dem(t_ft, z_factor=0.3048)).stations
+    b = measure_throw(f, open_dem(t_ft, metres_per_unit=0.3048)).stations
     c = measure_throw(f, open_dem(t_ft)).stations
     assert np.allclose(a["throw_m"], b["throw_m"], rtol=1e-5)
     assert np.allclose(c["throw_m"], a["throw_m"] / 0.3048, rtol=1e-5)
@@ -760,7 +760,7 @@ def test_first_run_compile_is_announced(tmp_path, monkeypatch):
 
 def test_window_reader_voids(tmp_path):
     # pitfalls.md: a DEM without a nodata tag still has voids (-32768 in int16 here); +-inf are voids;
-    # a void never becomes a number, and z_factor scales the rest
+    # a void never becomes a number, and metres_per_unit scales the rest
     from faultmap.io.dem import read_window_array
 
     z = np.arange(20 * 30, dtype="int16").reshape(20, 30)
@@ -777,7 +777,7 @@ def test_window_reader_voids(tmp_path):
         transform=from_origin(0, 200, 10, 10),
     ) as ds:
         ds.write(z, 1)
-    dem = open_dem(tmp_path / "i.tif", z_factor=0.5)
+    dem = open_dem(tmp_path / "i.tif", metres_per_unit=0.5)
     arr, t, off = read_window_array(dem, (0, 0, 300, 200), pad_pixels=0)
     assert arr.dtype == np.float32 and arr.shape == (20, 30) and off == (0, 0)
     assert np.isnan(arr[5, 7]) and np.isnan(arr).sum() == 1
