@@ -4,8 +4,9 @@ Throw, scaling, extension, strain, rift width and hazard screening come out as
 GeoPackage layers and figures.
 
 The Python API mirrors the command line: :func:`run_tools` runs named tools,
-:func:`run_project` runs a project (TOML) file. Analyses live in modules named
-for what they compute (``faultmap.traces.conditioning``, ``faultmap.throw.step``...).
+:func:`run_project` runs a project (TOML) file. Analyses live
+in one package per analysis (``faultmap.throw``, ``faultmap.population``, ``faultmap.extension``,
+``faultmap.rift``, ``faultmap.hazard``...).
 """
 
 from __future__ import annotations

@@ -84,7 +84,7 @@ def _param_option(p: Param) -> click.Option:
 
 def _parse_fields(items) -> dict:
     from faultmap.errors import InputError
-    from faultmap.traces.conditioning import DEFAULT_FIELDS
+    from faultmap.registry import DEFAULT_FIELDS
 
     out = {}
     for it in items:

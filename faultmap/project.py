@@ -29,9 +29,8 @@ import sys
 from pathlib import Path
 
 from faultmap.errors import ProjectFileError
-from faultmap.registry import BrokenTool, load_tools
+from faultmap.registry import DEFAULT_FIELDS, BrokenTool, load_tools
 from faultmap.runner import INPUT_KEYS, RunResult, run_tools
-from faultmap.traces.conditioning import DEFAULT_FIELDS
 
 if sys.version_info >= (3, 11):
     import tomllib

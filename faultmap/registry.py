@@ -24,6 +24,7 @@ from faultmap.errors import NotAvailableError, ParameterError
 __all__ = [
     "ENTRY_POINT_GROUP",
     "INPUT_KINDS",
+    "DEFAULT_FIELDS",
     "Param",
     "Tool",
     "BrokenTool",
@@ -43,6 +44,10 @@ INPUT_KINDS = {
     "transects": "Transect lines (optional): any vector source GDAL reads.",
     "study_area": "Study-area polygon(s) (optional): traces ending near its boundary are censored.",
 }
+
+#: Attribute fields the tools read from the fault traces: our name -> default column name
+#: (remapped with ``--field NAME=COLUMN`` or a project file's ``[fields]`` table).
+DEFAULT_FIELDS = {"name": "name", "dip": "dip", "dip_dir": "dip_dir", "active": "active", "surface_age_ka": "surface_age_ka"}
 
 _TYPE_NAMES = {float: "number", int: "integer", bool: "true/false", str: "text"}
 

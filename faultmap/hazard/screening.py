@@ -24,8 +24,8 @@ age of the offset surface; recurrence = single-event displacement / slip rate
 (methods.md). Zone widths are common practice (from memory), not a code.
 
 The work is split by what it computes; this module runs it all
-(:func:`screen_hazard`), holds :data:`CAUTION` and re-exports every public
-name:
+(:func:`screen_hazard`), and holds :data:`CAUTION`; the parts (public names
+listed in :mod:`faultmap.hazard`) are:
 
 * :mod:`faultmap.hazard.inputs`: which faults are screened;
 * :mod:`faultmap.hazard.scenarios`: scenarios, magnitudes, moment;
@@ -43,18 +43,12 @@ import numpy as np
 from faultmap.hazard.inputs import _col, _compact, select_faults
 from faultmap.hazard.magnitudes import MAGNITUDE_KEYS, SHEAR_MODULUS_PA
 from faultmap.hazard.scenarios import rupture_scenarios
-from faultmap.hazard.slip_rates import slip_rate_draws, slip_rates
-from faultmap.hazard.zones import mapping_uncertainty_from_scale, rupture_zones
+from faultmap.hazard.slip_rates import slip_rates
+from faultmap.hazard.zones import rupture_zones
 
 __all__ = [
     "CAUTION",
     "HazardResult",
-    "select_faults",
-    "rupture_scenarios",
-    "slip_rate_draws",
-    "slip_rates",
-    "mapping_uncertainty_from_scale",
-    "rupture_zones",
     "screen_hazard",
 ]
 

@@ -25,7 +25,7 @@ _EXPORTS = {
     "scaling_residuals": "outliers",
     "compare_to_references": "references",
     "analyse_scaling": "scaling",
-    "PowerLawFit": "sizes",
+    "PowerLawFit": "powerlaw_fit",
     "SizeResult": "sizes",
     "power_law_mle": "powerlaw_fit",
     "ks_distance": "powerlaw_fit",

@@ -4,8 +4,8 @@ Exponential and log-normal distributions truncated at the power law's
 ``x_min``, fitted by maximum likelihood, and Vuong's test (Vuong 1989) as
 used by Clauset, Shalizi & Newman (2009, section 5.1): the normalised ratio
 ``R / (sigma sqrt(n))`` (positive favours the power law) and the two-sided
-p-value ``erfc(|R| / sqrt(2 n sigma^2))``. :mod:`faultmap.population.sizes`
-re-exports the public names.
+p-value ``erfc(|R| / sqrt(2 n sigma^2))``. The public names are
+listed in :mod:`faultmap.population`.
 """
 
 from __future__ import annotations

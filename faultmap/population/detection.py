@@ -1,6 +1,6 @@
 """How the detection limit of the data bears on a fitted size distribution.
 
-:mod:`faultmap.population.sizes` re-exports the public name.
+The public name is listed in :mod:`faultmap.population`.
 """
 
 from __future__ import annotations
@@ -10,7 +10,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 if TYPE_CHECKING:
-    from faultmap.population.sizes import PowerLawFit
+    from faultmap.population.powerlaw_fit import PowerLawFit
 
 __all__ = ["detection_effects"]
 

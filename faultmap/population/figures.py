@@ -11,8 +11,11 @@ from collections.abc import Mapping, Sequence
 import numpy as np
 from matplotlib.figure import Figure
 
-from faultmap.population.scaling import REFERENCE_RANGES, LineFit, ReferenceRange, ScalingResult
-from faultmap.population.sizes import PowerLawFit, ccdf
+from faultmap.population.linefit import LineFit
+from faultmap.population.powerlaw_fit import PowerLawFit
+from faultmap.population.references import REFERENCE_RANGES, ReferenceRange
+from faultmap.population.scaling import ScalingResult
+from faultmap.population.sizes import ccdf
 
 __all__ = ["dl_figure", "size_figure"]
 

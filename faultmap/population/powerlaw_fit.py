@@ -1,4 +1,4 @@
-"""Continuous power law: maximum-likelihood exponent and the x_min scan by KS distance.
+"""Continuous power law: the fit result type, maximum-likelihood exponent and the x_min scan by KS distance.
 
 ``p(x) = (alpha - 1) / x_min * (x / x_min)**(-alpha)`` for ``x >= x_min``,
 fitted as in Clauset, Shalizi & Newman (2009, SIAM Review 51, 661-703):
@@ -10,15 +10,17 @@ fitted law (their section 3.3).
 The x_min scan is vectorised: for sorted samples (one row each), suffix sums
 of ``ln x`` give alpha for every candidate at once, and the KS distance of
 every candidate is a masked maximum over a (rows, candidates, n) array that
-is processed in memory-bounded chunks. :mod:`faultmap.population.sizes` re-exports the
-public names.
+is processed in memory-bounded chunks. The fit result type
+:class:`PowerLawFit` lives here too; public names are listed in :mod:`faultmap.population`.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+from scipy import special
 
 from faultmap.errors import InputError, ParameterError
 
@@ -209,3 +211,93 @@ def scan_x_min(
     pos = _candidate_positions(xs.size, min_tail, max_candidates, xs)
     xm, a, d, nt = _scan_sorted(xs[None, :], pos)
     return float(xm[0]), float(a[0]), float(d[0]), int(nt[0])
+
+
+@dataclass(frozen=True, eq=False)
+class PowerLawFit:
+    """A power-law fit of one variable, with its tests.
+
+    Attributes
+    ----------
+    variable : str
+        Name of the fitted variable (e.g. ``length_m``).
+    fitted : bool
+        False when the data cannot support a fit; ``reason`` says why.
+    reason : str
+        Empty when fitted.
+    alpha, se : float
+        Exponent of the density and its standard error.
+    x_min : float
+        Lower bound of the power-law tail (unit of the variable).
+    n, n_tail : int
+        Number of values, and of values >= x_min.
+    ks_d : float
+        KS distance of the tail to the fitted law.
+    gof_p : float
+        Bootstrap goodness-of-fit p-value (NaN if not computed);
+        p <= 0.1 rules the power law out (Clauset et al. 2009).
+    gof_n : int
+        Number of bootstrap data sets.
+    lr_exponential, p_exponential, llr_exponential : float
+        Vuong test against the exponential: normalised ratio, p-value and
+        raw log-likelihood ratio (positive favours the power law).
+    lr_lognormal, p_lognormal, llr_lognormal : float
+        The same against the log-normal.
+    exp_rate : float
+        Rate of the fitted truncated exponential (1 / unit).
+    lognormal_mu, lognormal_sigma : float
+        Parameters of the fitted truncated log-normal (of ln x).
+    values : numpy.ndarray
+        Sorted values the fit saw.
+    """
+
+    variable: str
+    fitted: bool
+    reason: str = ""
+    alpha: float = float("nan")
+    se: float = float("nan")
+    x_min: float = float("nan")
+    n: int = 0
+    n_tail: int = 0
+    ks_d: float = float("nan")
+    gof_p: float = float("nan")
+    gof_n: int = 0
+    lr_exponential: float = float("nan")
+    p_exponential: float = float("nan")
+    llr_exponential: float = float("nan")
+    lr_lognormal: float = float("nan")
+    p_lognormal: float = float("nan")
+    llr_lognormal: float = float("nan")
+    exp_rate: float = float("nan")
+    lognormal_mu: float = float("nan")
+    lognormal_sigma: float = float("nan")
+    values: np.ndarray = field(default_factory=lambda: np.empty(0))
+
+    def ccdf_model(self, x: Any, model: str = "power_law") -> np.ndarray:
+        """P(X >= x) of a fitted model, scaled to the whole sample.
+
+        Parameters
+        ----------
+        x : array_like
+            Values >= x_min.
+        model : {'power_law', 'exponential', 'lognormal'}
+
+        Returns
+        -------
+        numpy.ndarray
+            ``(n_tail / n) * S(x) / S(x_min)``; NaN below x_min.
+        """
+        x = np.asarray(x, dtype=float)
+        frac = self.n_tail / self.n if self.n else np.nan
+        with np.errstate(divide="ignore", invalid="ignore"):
+            if model == "power_law":
+                s = (x / self.x_min) ** (1.0 - self.alpha)
+            elif model == "exponential":
+                s = np.exp(-self.exp_rate * (x - self.x_min))
+            elif model == "lognormal":
+                z = (np.log(x) - self.lognormal_mu) / self.lognormal_sigma
+                z0 = (np.log(self.x_min) - self.lognormal_mu) / self.lognormal_sigma
+                s = np.exp(special.log_ndtr(-z) - special.log_ndtr(-z0))
+            else:
+                raise ParameterError(f"model={model!r}: use power_law, exponential or lognormal")
+        return np.where(x >= self.x_min, frac * s, np.nan)

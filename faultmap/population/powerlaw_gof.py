@@ -3,8 +3,8 @@
 The p-value is the fraction of synthetic data sets whose KS distance (after
 their own full fit, x_min scan included) is at least the observed one; all
 synthetic sets are scanned at once with the vectorised scan of
-:mod:`faultmap.population.powerlaw_fit`. :mod:`faultmap.population.sizes` re-exports the public
-name.
+:mod:`faultmap.population.powerlaw_fit`. The public name is listed in
+:mod:`faultmap.population`.
 """
 
 from __future__ import annotations

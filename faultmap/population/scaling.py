@@ -18,7 +18,8 @@ non-parametric bootstrap percentile intervals over the faults (Efron &
 Tibshirani 1993, common practice).
 
 The work is split by what it computes; this module puts it together
-(:func:`analyse_scaling`) and re-exports every public name:
+(:func:`analyse_scaling`); the parts (public names listed in
+:mod:`faultmap.population`) are:
 
 * :mod:`faultmap.population.dl_units`: units of analysis (traces or linked systems);
 * :mod:`faultmap.population.linefit`: OLS / RMA / York line fits and their bootstrap;
@@ -36,34 +37,18 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from faultmap.population.dl_units import _population, displacement_population
+from faultmap.population.dl_units import _population
 from faultmap.population.linefit import (
     MODELS,
     LineFit,
     _check_choice,
     fit_displacement_length,
-    fit_line,
-    ols_line,
-    rma_line,
-    york_fit,
 )
 from faultmap.population.outliers import _hints, scaling_residuals
-from faultmap.population.references import REFERENCE_RANGES, ReferenceRange, compare_to_references
+from faultmap.population.references import compare_to_references
 
 __all__ = [
-    "MODELS",
-    "REFERENCE_RANGES",
-    "ReferenceRange",
-    "LineFit",
     "ScalingResult",
-    "displacement_population",
-    "ols_line",
-    "rma_line",
-    "york_fit",
-    "fit_line",
-    "fit_displacement_length",
-    "scaling_residuals",
-    "compare_to_references",
     "analyse_scaling",
 ]
 

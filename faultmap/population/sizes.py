@@ -21,137 +21,36 @@ of ``ln x`` give alpha for every candidate at once, and the KS distance of
 every candidate is a masked maximum over a (rows, candidates, n) array that
 is processed in memory-bounded chunks.
 
-The parts live in modules named for what they compute, re-exported here so
-that imports from :mod:`faultmap.population.sizes` keep working:
+The parts live in modules named for what they compute (public names are
+listed in :mod:`faultmap.population`):
 :mod:`faultmap.population.powerlaw_fit` (MLE, KS distance, x_min scan),
 :mod:`faultmap.population.powerlaw_gof` (bootstrap goodness of fit),
 :mod:`faultmap.population.alternatives` (exponential, log-normal, Vuong test) and
 :mod:`faultmap.population.detection` (detection-limit effects). This module holds
-the result types, the whole fit and the analysis of a population.
+the population result type, the whole fit and the analysis of a population.
 """
 
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import special
 
-from faultmap.errors import InputError, ParameterError
-from faultmap.population.alternatives import compare_alternatives, fit_exponential, fit_lognormal, vuong_test
+from faultmap.errors import InputError
+from faultmap.population.alternatives import compare_alternatives
 from faultmap.population.detection import detection_effects
-from faultmap.population.powerlaw_fit import ks_distance, power_law_mle, scan_x_min
+from faultmap.population.powerlaw_fit import PowerLawFit, ks_distance, power_law_mle, scan_x_min
 from faultmap.population.powerlaw_gof import power_law_gof
 
 __all__ = [
-    "PowerLawFit",
     "SizeResult",
-    "power_law_mle",
-    "ks_distance",
-    "scan_x_min",
-    "power_law_gof",
-    "fit_exponential",
-    "fit_lognormal",
-    "vuong_test",
-    "compare_alternatives",
     "fit_power_law",
     "ccdf",
-    "detection_effects",
     "analyse_sizes",
 ]
-
-
-@dataclass(frozen=True, eq=False)
-class PowerLawFit:
-    """A power-law fit of one variable, with its tests.
-
-    Attributes
-    ----------
-    variable : str
-        Name of the fitted variable (e.g. ``length_m``).
-    fitted : bool
-        False when the data cannot support a fit; ``reason`` says why.
-    reason : str
-        Empty when fitted.
-    alpha, se : float
-        Exponent of the density and its standard error.
-    x_min : float
-        Lower bound of the power-law tail (unit of the variable).
-    n, n_tail : int
-        Number of values, and of values >= x_min.
-    ks_d : float
-        KS distance of the tail to the fitted law.
-    gof_p : float
-        Bootstrap goodness-of-fit p-value (NaN if not computed);
-        p <= 0.1 rules the power law out (Clauset et al. 2009).
-    gof_n : int
-        Number of bootstrap data sets.
-    lr_exponential, p_exponential, llr_exponential : float
-        Vuong test against the exponential: normalised ratio, p-value and
-        raw log-likelihood ratio (positive favours the power law).
-    lr_lognormal, p_lognormal, llr_lognormal : float
-        The same against the log-normal.
-    exp_rate : float
-        Rate of the fitted truncated exponential (1 / unit).
-    lognormal_mu, lognormal_sigma : float
-        Parameters of the fitted truncated log-normal (of ln x).
-    values : numpy.ndarray
-        Sorted values the fit saw.
-    """
-
-    variable: str
-    fitted: bool
-    reason: str = ""
-    alpha: float = float("nan")
-    se: float = float("nan")
-    x_min: float = float("nan")
-    n: int = 0
-    n_tail: int = 0
-    ks_d: float = float("nan")
-    gof_p: float = float("nan")
-    gof_n: int = 0
-    lr_exponential: float = float("nan")
-    p_exponential: float = float("nan")
-    llr_exponential: float = float("nan")
-    lr_lognormal: float = float("nan")
-    p_lognormal: float = float("nan")
-    llr_lognormal: float = float("nan")
-    exp_rate: float = float("nan")
-    lognormal_mu: float = float("nan")
-    lognormal_sigma: float = float("nan")
-    values: np.ndarray = field(default_factory=lambda: np.empty(0))
-
-    def ccdf_model(self, x: Any, model: str = "power_law") -> np.ndarray:
-        """P(X >= x) of a fitted model, scaled to the whole sample.
-
-        Parameters
-        ----------
-        x : array_like
-            Values >= x_min.
-        model : {'power_law', 'exponential', 'lognormal'}
-
-        Returns
-        -------
-        numpy.ndarray
-            ``(n_tail / n) * S(x) / S(x_min)``; NaN below x_min.
-        """
-        x = np.asarray(x, dtype=float)
-        frac = self.n_tail / self.n if self.n else np.nan
-        with np.errstate(divide="ignore", invalid="ignore"):
-            if model == "power_law":
-                s = (x / self.x_min) ** (1.0 - self.alpha)
-            elif model == "exponential":
-                s = np.exp(-self.exp_rate * (x - self.x_min))
-            elif model == "lognormal":
-                z = (np.log(x) - self.lognormal_mu) / self.lognormal_sigma
-                z0 = (np.log(self.x_min) - self.lognormal_mu) / self.lognormal_sigma
-                s = np.exp(special.log_ndtr(-z) - special.log_ndtr(-z0))
-            else:
-                raise ParameterError(f"model={model!r}: use power_law, exponential or lognormal")
-        return np.where(x >= self.x_min, frac * s, np.nan)
 
 
 @dataclass(frozen=True, eq=False)

@@ -10,7 +10,6 @@ package (or its tool declaration) stays light.
 from faultmap.lazy import lazy_exports
 
 _EXPORTS = {
-    "DEFAULT_FIELDS": "conditioning",
     "condition_traces": "conditioning",
     "strike_from_geometry": "conditioning",
     "orient_traces": "conditioning",

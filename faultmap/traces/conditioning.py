@@ -17,12 +17,10 @@ from scipy.sparse.csgraph import connected_components
 
 from faultmap.errors import GeometryError, InputError
 from faultmap.numerics.directions import axial_mean_deg, segment_azimuths
+from faultmap.registry import DEFAULT_FIELDS
 
 __all__ = [
-    "DEFAULT_FIELDS",
     "condition_traces",
-    "segment_azimuths",
-    "axial_mean_deg",
     "strike_from_geometry",
     "orient_traces",
     "censor_flags",
@@ -30,9 +28,6 @@ __all__ = [
 ]
 
 #: Input attribute names (conventions); remappable with ``[fields]``.
-DEFAULT_FIELDS = {"name": "name", "dip": "dip", "dip_dir": "dip_dir", "active": "active", "surface_age_ka": "surface_age_ka"}
-
-
 def strike_from_geometry(lines, dip_dir_deg=None) -> np.ndarray:
     """Right-hand-rule strike of each line, length-weighted over its segments.
 

@@ -22,15 +22,10 @@ import shapely
 matplotlib.use("Agg")
 
 from faultmap.errors import InputError, ParameterError  # noqa: E402
-from faultmap.hazard.screening import (  # noqa: E402
-    CAUTION,
-    mapping_uncertainty_from_scale,
-    rupture_scenarios,
-    rupture_zones,
-    screen_hazard,
-    slip_rate_draws,
-    slip_rates,
-)
+from faultmap.hazard.scenarios import rupture_scenarios
+from faultmap.hazard.screening import CAUTION, screen_hazard
+from faultmap.hazard.slip_rates import slip_rate_draws, slip_rates
+from faultmap.hazard.zones import mapping_uncertainty_from_scale, rupture_zones
 
 CRS = "EPSG:32633"
 
@@ -437,7 +432,7 @@ def test_missing_system_id_is_a_system_of_its_own():
     import numpy as np
     import shapely
 
-    from faultmap.hazard.screening import rupture_scenarios
+    from faultmap.hazard.scenarios import rupture_scenarios
 
     f = gpd.GeoDataFrame(
         {"fault_id": [1, 2], "dip_deg": [60.0, 60.0], "dip_dir_deg": [90.0, 90.0], "system_id": [1.0, np.nan],

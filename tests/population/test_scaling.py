@@ -17,16 +17,11 @@ matplotlib.use("Agg")
 import geopandas as gpd  # noqa: E402
 
 from faultmap.errors import InputError, ParameterError  # noqa: E402
-from faultmap.population.scaling import (  # noqa: E402
-    analyse_scaling,
-    compare_to_references,
-    displacement_population,
-    fit_line,
-    ols_line,
-    rma_line,
-    scaling_residuals,
-    york_fit,
-)
+from faultmap.population.dl_units import displacement_population
+from faultmap.population.linefit import fit_line, ols_line, rma_line, york_fit
+from faultmap.population.outliers import scaling_residuals
+from faultmap.population.references import compare_to_references
+from faultmap.population.scaling import analyse_scaling
 
 # Pearson (1901) data with York (1966) weights: the standard test of
 # errors-in-variables lines (York et al. 2004, Am. J. Phys. 72, 367).

@@ -18,18 +18,11 @@ import pytest
 matplotlib.use("Agg")
 
 from faultmap.errors import InputError, ParameterError  # noqa: E402
-from faultmap.population.sizes import (  # noqa: E402
-    analyse_sizes,
-    ccdf,
-    compare_alternatives,
-    detection_effects,
-    fit_power_law,
-    ks_distance,
-    power_law_gof,
-    power_law_mle,
-    scan_x_min,
-    vuong_test,
-)
+from faultmap.population.alternatives import compare_alternatives, vuong_test
+from faultmap.population.detection import detection_effects
+from faultmap.population.powerlaw_fit import ks_distance, power_law_mle, scan_x_min
+from faultmap.population.powerlaw_gof import power_law_gof
+from faultmap.population.sizes import analyse_sizes, ccdf, fit_power_law
 
 
 def _power_law_sample(rng, n, alpha, x_min):

@@ -10,14 +10,9 @@ import shapely
 from pyproj import CRS, Geod
 
 from faultmap.errors import GeometryError, InputError
+from faultmap.numerics.directions import axial_mean_deg
 from faultmap.runner import run_tools
-from faultmap.traces.conditioning import (
-    axial_mean_deg,
-    censor_flags,
-    condition_traces,
-    link_systems,
-    strike_from_geometry,
-)
+from faultmap.traces.conditioning import censor_flags, condition_traces, link_systems, strike_from_geometry
 
 UTM = "EPSG:32753"
 
