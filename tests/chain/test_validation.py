@@ -312,6 +312,8 @@ def test_demo_runs_every_tool_with_figures(tmp_path):
             if layer in ("strain_areas",):  # only with a study area
                 continue
             assert layer in layers, f"{name}: layer {layer} missing"
+    declared_layers = {layer for t in registry.values() for layer in t.layers} | {"run_info"}
+    assert layers <= declared_layers, layers - declared_layers  # README's table lists the declared ones
     written = {p.name for p in res.figures}
     declared = {f for t in registry.values() for f in t.figures}
     assert declared <= written, declared - written

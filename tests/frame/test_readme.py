@@ -27,3 +27,16 @@ def test_readme_opens_with_a_paragraph_then_two_commands():
 def test_ci_runs_the_readme_test_command():
     ci = (ROOT / ".ci" / "run").read_text()
     assert _commands()[1] in ci
+
+
+def test_readme_layer_table_lists_every_declared_layer():
+    # The layer table must name exactly the layers the tools declare (plus run_info, which the runner
+    # writes); the chain tests check that runs write only declared layers.
+    from faultmap.registry import load_tools
+
+    text = (ROOT / "README.md").read_text()
+    table = text.split("## Output layers", 1)[1].split("\n\n", 2)[1]
+    listed = set(re.findall(r"^\| `(\w+)` \|", table, flags=re.M))
+    declared = {name for tool in load_tools().values() for name in getattr(tool, "layers", ())}
+    assert "rupture_zones" in declared and "linkage_zones" in declared
+    assert listed == declared | {"run_info"}
