@@ -13,7 +13,7 @@ package (or its tool declaration) stays light.
 from faultmap.lazy import lazy_exports
 
 _EXPORTS = {
-    "CAUTION": "screening",
+    "CAUTION": "caution",
     "HazardResult": "screening",
     "select_faults": "inputs",
     "rupture_scenarios": "scenarios",

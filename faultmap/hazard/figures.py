@@ -17,8 +17,8 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, PathPatch
 from matplotlib.path import Path
 
+from faultmap.hazard.caution import CAUTION
 from faultmap.hazard.magnitudes import MAGNITUDE_KEYS, get_relation
-from faultmap.hazard.screening import CAUTION
 
 __all__ = ["map_caption", "relations_caption", "hazard_map", "magnitude_by_relation"]
 

@@ -33,10 +33,13 @@ with the X-on-M rows.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
 from numpy.typing import ArrayLike
+
+if TYPE_CHECKING:  # pandas is imported where a table is built (keeps tool listing light)
+    import pandas as pd
 
 from faultmap.errors import InputError, ParameterError
 
@@ -479,6 +482,8 @@ def magnitude_table(
         cols[f"mag_{key}"] = magnitude(key, x)
         cols[f"mag_{key}_sigma"] = magnitude_sigma(key, x)
         warns += range_warnings(key, x, labels=labels)
+    import pandas as pd
+
     return pd.DataFrame(cols), warns
 
 

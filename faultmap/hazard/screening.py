@@ -40,6 +40,7 @@ from dataclasses import dataclass, field
 import geopandas as gpd
 import numpy as np
 
+from faultmap.hazard.caution import CAUTION
 from faultmap.hazard.inputs import _col, _compact, select_faults
 from faultmap.hazard.magnitudes import MAGNITUDE_KEYS, SHEAR_MODULUS_PA
 from faultmap.hazard.scenarios import rupture_scenarios
@@ -52,16 +53,6 @@ __all__ = [
     "screen_hazard",
 ]
 
-#: The caution that goes with every hazard output (figures, docs, run_info).
-CAUTION = (
-    "SCREENING ONLY. These magnitudes, slip rates, recurrence intervals and "
-    "surface-rupture zones are first-pass estimates from mapped traces, a DEM "
-    "and empirical relations whose scatter is large (about 0.25-0.4 magnitude "
-    "units, one sigma) and which are valid only inside the data ranges they "
-    "were fitted on. They are not a site-specific fault-rupture investigation "
-    "(no trenching, no dating, no subsurface data). Local codes and licensed "
-    "professionals decide on setbacks, design and land use."
-)
 
 
 @dataclass

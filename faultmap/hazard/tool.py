@@ -9,8 +9,8 @@ warnings and the screening caution (:data:`faultmap.hazard.screening.CAUTION`).
 from __future__ import annotations
 
 from faultmap.errors import InputError, ParameterError
+from faultmap.hazard.caution import CAUTION
 from faultmap.hazard.magnitudes import PREFERRED_RULES, SHEAR_MODULUS_PA
-from faultmap.hazard.screening import CAUTION, screen_hazard
 from faultmap.registry import Param, Tool
 
 MAP_FIGURE = "hazard_map.png"
@@ -30,6 +30,8 @@ def _parse_ids(text: str | None) -> list[int] | None:
 
 def run(ctx, p: dict) -> None:
     """Screen the active faults of ``ctx.faults``."""
+    from faultmap.hazard.screening import screen_hazard
+
     faults = ctx.faults
     if faults is None:
         raise InputError("hazard needs the faults layer: run prepare (and throw) first.")

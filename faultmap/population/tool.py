@@ -9,15 +9,12 @@ context.
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
 
 from faultmap.errors import InputError
-from faultmap.population.scaling import analyse_scaling
-from faultmap.population.sizes import analyse_sizes
 from faultmap.registry import Param, Tool
 
 
-def _detection_throw(faults: pd.DataFrame, given: float | None) -> tuple[float, str]:
+def _detection_throw(faults, given: float | None) -> tuple[float, str]:
     """Return the detection throw (m): the parameter, or 3 x the median throw error (our rule)."""
     if given is not None:
         return float(given), "parameter"
@@ -31,6 +28,11 @@ def _detection_throw(faults: pd.DataFrame, given: float | None) -> tuple[float, 
 
 def run(ctx, p: dict) -> None:
     """Fit D-L scaling and size distributions of ``ctx.faults``."""
+    import pandas as pd
+
+    from faultmap.population.scaling import analyse_scaling
+    from faultmap.population.sizes import analyse_sizes
+
     faults = ctx.faults
     if faults is None or len(faults) == 0:
         raise InputError(

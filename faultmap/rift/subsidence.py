@@ -14,9 +14,12 @@ the end of rifting in Myr (1 Myr = 1e6 Julian years of 365.25 days).
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:  # pandas is imported where a table is built (keeps tool listing light)
+    import pandas as pd
 
 from faultmap.errors import ParameterError
 
@@ -290,6 +293,8 @@ def subsidence_curve(
         diffusivity_m2_s=diffusivity_m2_s,
     )
     st = np.atleast_1d(st)
+    import pandas as pd
+
     return pd.DataFrame(
         {
             "time_myr": t,

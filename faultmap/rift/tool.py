@@ -16,9 +16,7 @@ import shapely
 
 from faultmap.errors import InputError, ParameterError
 from faultmap.registry import Param, Tool
-from faultmap.rift import classify_rift, rift_axis, rift_sections
 from faultmap.rift.subsidence import CRUST_THICKNESS_M, subsidence_curve
-from faultmap.rift.swath import profile_stats, swath_features, swath_grid
 
 MAP_FIGURE = "width_map.png"
 ALONG_FIGURE = "width_along_axis.png"
@@ -46,6 +44,8 @@ def _beta_from_context(ctx) -> tuple[float | None, str]:
 
 
 def _swath(ctx, p: dict, sections, faults_extent_m: float):
+    from faultmap.rift.swath import profile_stats, swath_features, swath_grid
+
     """Swath profiles along the sections, sampled from ctx.dem in windows."""
     dem = ctx.dem
     measured = sections[np.isfinite(sections["across_min_m"])]
@@ -82,6 +82,10 @@ def _swath(ctx, p: dict, sections, faults_extent_m: float):
 
 def run(ctx, p: dict) -> None:
     """Rift axis, sections, widths, classification, swaths and subsidence."""
+    from faultmap.rift.axis import rift_axis
+    from faultmap.rift.classification import classify_rift
+    from faultmap.rift.widths import rift_sections
+
     faults = ctx.faults
     if faults is None or len(faults) == 0:
         raise InputError("width needs the faults layer: run prepare and throw first.")

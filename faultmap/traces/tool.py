@@ -10,11 +10,12 @@ import numpy as np
 
 from faultmap.errors import InputError
 from faultmap.registry import Param, Tool
-from faultmap.traces.conditioning import censor_flags, condition_traces, link_systems
 
 
 def run(ctx, p: dict) -> None:
     """Condition ``ctx.raw_faults`` into the ``faults`` layer."""
+    from faultmap.traces.conditioning import censor_flags, condition_traces, link_systems
+
     raw = ctx.raw_faults
     where = raw.attrs.get("source", "faults")
     faults, warns = condition_traces(raw, fields=ctx.fields, dip_deg=p["dip_deg"], where=where)
