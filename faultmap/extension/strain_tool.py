@@ -16,7 +16,7 @@ import numpy as np
 import shapely
 
 from faultmap.errors import InputError
-from faultmap.extension.kostrov import (
+from faultmap.extension.kostrov_pieces import (
     gather_kostrov_tiles,
     kostrov_polygons,
     kostrov_tile,

@@ -16,7 +16,7 @@ import numpy as np
 
 from faultmap.errors import InputError
 from faultmap.extension.subresolution import detection_throw_m
-from faultmap.extension.transects import (
+from faultmap.extension.transect_measure import (
     ZONE_CHOICES,
     auto_transects,
     gather_transect_batches,

@@ -19,7 +19,7 @@ from matplotlib.figure import Figure  # noqa: E402
 
 from faultmap.errors import CRSError, FaultmapWarning, ParameterError  # noqa: E402
 from faultmap.extension.figures import extension_map_figure, transect_extension_figure  # noqa: E402
-from faultmap.extension.kostrov import (  # noqa: E402
+from faultmap.extension.kostrov_pieces import (  # noqa: E402
     fault_moment_sum,
     fault_pieces,
     kostrov_grid,
@@ -27,7 +27,7 @@ from faultmap.extension.kostrov import (  # noqa: E402
     principal_strains,
     whole_area_strain,
 )
-from faultmap.extension.transects import measure_transects  # noqa: E402
+from faultmap.extension.transect_measure import measure_transects  # noqa: E402
 
 CRS = "EPSG:32636"
 

@@ -144,7 +144,7 @@ def test_project_engine_table_and_cli_scheduler(ostrel, cluster, monkeypatch, tm
 
 
 def test_strain_tiles_match_the_whole_grid_for_any_tile_size(ostrel):
-    from faultmap.extension.kostrov import (
+    from faultmap.extension.kostrov_pieces import (
         gather_kostrov_tiles,
         kostrov_grid,
         kostrov_tile,
@@ -171,7 +171,7 @@ def test_strain_tiles_match_the_whole_grid_for_any_tile_size(ostrel):
 
 
 def test_transect_batches_are_independent_of_batch_size(ostrel):
-    from faultmap.extension.transects import (
+    from faultmap.extension.transect_measure import (
         gather_transect_batches,
         measure_transect_batch,
         measure_transects,
@@ -355,7 +355,7 @@ def test_transect_warnings_merged_across_batches_match_one_call(ostrel):
     import warnings
 
     from faultmap.errors import FaultmapWarning
-    from faultmap.extension.transects import (
+    from faultmap.extension.transect_measure import (
         gather_transect_batches,
         measure_transect_batch,
         measure_transects,

@@ -32,7 +32,7 @@ import pandas as pd
 import shapely
 
 from faultmap.errors import FaultmapWarning, GeometryError, InputError, ParameterError
-from faultmap.extension.transects import (
+from faultmap.extension.transect_measure import (
     _check_faults,
     _check_rake,
     _ids,
