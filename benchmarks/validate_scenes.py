@@ -4,18 +4,18 @@ The same checks as ``tests/chain/test_validation.py`` on bigger versions of the
 same fictional scenes (``tests/scenes.py``: finer pixels, more faults), plus
 a sensitivity scene and the demo area at full size, printed as a table:
 
-* Ostrel Trough (narrow graben, axis 35 deg, EPSG:32633) at 50 m pixels
+* Skervolin Trough (narrow graben, axis 35 deg, EPSG:32633) at 50 m pixels
   (1000 x 1000): throw, transects, Kostrov strain, width, hazard;
 * the same with hanging walls tapering from 0.5 L instead of L (sharper
   flexure next to the neighbouring traces): throw and slip rates only, to
   show how much the scene's curvature costs;
-* Quenby Fault Field (D = gamma L, n = 1, custom transverse Mercator) with
+* Plessovar Fault Field (D = gamma L, n = 1, custom transverse Mercator) with
   40 faults at 35 m pixels: throw, and scaling fitted to throw and to
   dip-slip displacement (each compared with its own truth); and the same
   population with peaked (triangular) throw profiles: throw;
-* Marrowind Rift Province (wide, ~300 km, EPSG:32614) at 400 m pixels: throw,
+* Sundravelk Rift Province (wide, ~300 km, EPSG:32614) at 400 m pixels: throw,
   width;
-* the Merrivane Graben demo at scale 1 (1200 x 1200, 25 m): throw,
+* the Drovessin Graben demo at scale 1 (1200 x 1200, 25 m): throw,
   transects, width, hazard against its truth tables.
 
 Criteria and sources are those of the test file (throw median error <= 5 %;
@@ -184,8 +184,8 @@ def check_hazard(label, layers, truth: pd.DataFrame, traces):
 # ---------------------------------------------------------------------------
 def narrow(folder: Path, small: bool):
     px = 100.0 if small else 50.0
-    label = f"Ostrel Trough {px:g} m"
-    scene = narrow_rift_scene(folder / "ostrel", pixel_size_m=px)
+    label = f"Skervolin Trough {px:g} m"
+    scene = narrow_rift_scene(folder / "skervolin", pixel_size_m=px)
     layers, dt = run(scene, ["transect", "strain", "width", "hazard"])
     row(label, "size / run time", f"{scene.shape[0]} x {scene.shape[1]} px, {dt:.1f} s", "(info)", None)
     check_throw(label, scene, layers)
@@ -195,7 +195,7 @@ def narrow(folder: Path, small: bool):
     act = scene.table[scene.table["active"]]
     check_hazard(label, layers, act[["name", "length_m", "max_throw_m", "surface_age_ka"]], list(act.geometry))
 
-    label = f"Ostrel Trough {px:g} m, taper 0.5 L"
+    label = f"Skervolin Trough {px:g} m, taper 0.5 L"
     scene = narrow_rift_scene(folder / "ostrel_taper", pixel_size_m=px, hw_extent_factor=0.5)
     layers, dt = run(scene, ["hazard"])
     row(label, "size / run time", f"{scene.shape[0]} x {scene.shape[1]} px, {dt:.1f} s", "(info)", None)
@@ -206,11 +206,11 @@ def narrow(folder: Path, small: bool):
 
 def population(folder: Path, small: bool):
     if small:
-        scene = scaling_scene(folder / "quenby")
+        scene = scaling_scene(folder / "plessovar")
     else:
-        scene = scaling_scene(folder / "quenby", pixel_size_m=35.0, n_faults=40, half_extent_m=15_000.0,
+        scene = scaling_scene(folder / "plessovar", pixel_size_m=35.0, n_faults=40, half_extent_m=15_000.0,
                               length_range_m=(2000.0, 16_000.0), seed=4_409)
-    label = f"Quenby Fault Field {scene.pixel_size_m:g} m"
+    label = f"Plessovar Fault Field {scene.pixel_size_m:g} m"
     for disp in ("throw", "dip_slip"):
         layers, dt = run(scene, ["scaling"], out_name=f"results_{disp}.gpkg",
                          params={"scaling": {"displacement": disp, "gof_n": 200}})
@@ -228,7 +228,7 @@ def population(folder: Path, small: bool):
     kw = {} if small else dict(pixel_size_m=35.0, n_faults=40, half_extent_m=15_000.0,
                                length_range_m=(2000.0, 16_000.0), seed=4_409)
     scene = scaling_scene(folder / "quenby_peaked", profile_shape="triangular", **kw)
-    label = f"Quenby, triangular {scene.pixel_size_m:g} m"
+    label = f"Plessovar, triangular {scene.pixel_size_m:g} m"
     layers, dt = run(scene, ["throw"])
     row(label, "size / run time", f"{scene.shape[0]} x {scene.shape[1]} px, {dt:.1f} s", "(info)", None)
     check_throw(label, scene, layers)
@@ -236,8 +236,8 @@ def population(folder: Path, small: bool):
 
 def wide(folder: Path, small: bool):
     px = 800.0 if small else 400.0
-    label = f"Marrowind Rift Province {px:g} m"
-    scene = wide_rift_scene(folder / "marrowind", pixel_size_m=px)
+    label = f"Sundravelk Rift Province {px:g} m"
+    scene = wide_rift_scene(folder / "sundravelk", pixel_size_m=px)
     layers, dt = run(scene, ["width"])
     row(label, "size / run time", f"{scene.shape[0]} x {scene.shape[1]} px, {dt:.1f} s", "(info)", None)
     check_throw(label, scene, layers)
@@ -245,13 +245,13 @@ def wide(folder: Path, small: bool):
 
 
 def demo(folder: Path, small: bool):
-    """The Merrivane Graben demo against its truth tables."""
+    """The Drovessin Graben demo against its truth tables."""
     from demo_area import write_demo_area
     from demo_area.scenario import demo_faults
     from faultmap.project import run_project
 
     scale = 0.3 if small else 1.0
-    label = f"Merrivane demo scale {scale:g}"
+    label = f"Drovessin demo scale {scale:g}"
     paths = write_demo_area(folder / "demo", scale=scale)
     (folder / "demo" / "results").mkdir(exist_ok=True)
     t0 = time.perf_counter()

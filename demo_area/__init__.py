@@ -1,4 +1,4 @@
-"""The fictional Merrivane Graben demo area of faultmap.
+"""The fictional Drovessin Graben demo area of faultmap.
 
 ``write_demo_area(folder)`` writes a fault layer, a DEM built physically from
 known fault slips, transects, truth tables and a project file; see

@@ -1,6 +1,6 @@
-"""The Merrivane Graben: faultmap's fictional demo rift.
+"""The Drovessin Graben: faultmap's fictional demo rift.
 
-The Merrivane Graben is invented. No such place exists; it is placed in
+The Drovessin Graben is invented. No such place exists; it is placed in
 UTM zone 53S (EPSG:32753) in a stable continental interior where there is no
 rift, so that nobody mistakes it for real data. It is a 30 km x 30 km window
 on a NNE-trending graben (axis azimuth 20 deg) about 15 km wide:
@@ -8,7 +8,7 @@ on a NNE-trending graben (axis azimuth 20 deg) about 15 km wide:
 * two opposite-dipping border faults (the Western Boundary Fault dipping
   ESE and the Eastern Boundary Fault dipping WNW, 14-15.5 km long);
 * 20 intrabasinal faults, 2-9 km long, synthetic and antithetic, including
-  the Kestrel relay system: three en-echelon segments whose tips overlap
+  the Talvenic relay system: three en-echelon segments whose tips overlap
   by 0.6-0.7 km across steps of about 0.6 km;
 * maximum throws following D = gamma L with gamma drawn log-normally about
   0.02 and kept in 0.01-0.03 (Schlische et al. 1996 give D ~ 0.03 L for
@@ -57,7 +57,7 @@ __all__ = [
 ]
 
 #: Name of the fictional demo rift.
-SCENARIO_NAME = "Merrivane Graben"
+SCENARIO_NAME = "Drovessin Graben"
 #: Working CRS of the demo area: WGS 84 / UTM zone 53S.
 CRS_EPSG = 32753
 #: Nodata value of the written DEM.
@@ -104,26 +104,26 @@ class _Spec:
 _SPECS: tuple[_Spec, ...] = (
     _Spec("Western Boundary Fault", -8.0, 7.5, -7.0, +1, 58, "plateau", 0.55, 0.35, bow=-0.4, border=True),
     _Spec("Eastern Boundary Fault", -7.0, 7.0, 7.0, -1, 62, "plateau", 0.5, 0.3, bow=0.35, rot=1.5, border=True, reversed=True),
-    _Spec("Kestrel Relay South", -9.0, -3.6, -2.7, +1, 60, "triangular", 0.65, system="Kestrel relay system", dip_known=False),
-    _Spec("Kestrel Relay Centre", -4.3, 1.2, -2.05, +1, 60, "triangular", 0.5, system="Kestrel relay system"),
-    _Spec("Kestrel Relay North", 0.6, 5.4, -1.45, +1, 60, "triangular", 0.35, system="Kestrel relay system", dip_dir_known=False),
-    _Spec("Tallow Creek Fault", 2.5, 9.0, -5.0, +1, 55, "plateau", 0.5, 0.4, bow=0.15),
-    _Spec("Dunmoor Fault", -10.0, -5.0, -5.0, -1, 65, reversed=True),
-    _Spec("Glass Hill Fault", -1.8, 1.6, -4.2, -1, 60, "triangular", 0.4, dip_known=False),
+    _Spec("Talvenic Relay South", -9.0, -3.6, -2.7, +1, 60, "triangular", 0.65, system="Talvenic relay system", dip_known=False),
+    _Spec("Talvenic Relay Centre", -4.3, 1.2, -2.05, +1, 60, "triangular", 0.5, system="Talvenic relay system"),
+    _Spec("Talvenic Relay North", 0.6, 5.4, -1.45, +1, 60, "triangular", 0.35, system="Talvenic relay system", dip_dir_known=False),
+    _Spec("Ombrelu Creek Fault", 2.5, 9.0, -5.0, +1, 55, "plateau", 0.5, 0.4, bow=0.15),
+    _Spec("Ketharn Fault", -10.0, -5.0, -5.0, -1, 65, reversed=True),
+    _Spec("Vorlesk Hill Fault", -1.8, 1.6, -4.2, -1, 60, "triangular", 0.4, dip_known=False),
     _Spec("Central Fault", -6.5, 1.8, 0.6, -1, 57, "plateau", 0.45, 0.2, bow=-0.2, multipart=True),
-    _Spec("Ambleside Fault", 4.2, 9.6, 0.5, +1, 63, rot=-3.0, active=True, age_ka=120.0),
-    _Spec("Pellow Fault", -10.5, -6.6, 1.8, +1, 50, "plateau", 0.5, 0.3, dip_dir_known=False),
-    _Spec("Orrin Fault", -3.0, 3.2, 2.7, +1, 68, "triangular", 0.45, bow=0.1, reversed=True),
-    _Spec("Lark Fault", 4.8, 10.2, 3.6, -1, 52, "triangular", 0.55, dip_known=False),
-    _Spec("Saltbush Fault", -7.2, -3.6, 4.3, -1, 60, reversed=True),
-    _Spec("Hollin Fault", -2.2, 4.6, 5.4, -1, 47, "plateau", 0.6, 0.2, rot=2.5, active=True, age_ka=130.0),
-    _Spec("Copper Fault", 6.0, 10.6, -3.2, -1, 66, "plateau", 0.5, 0.4, dip_dir_known=False),
-    _Spec("Yarrow Fault", 7.8, 11.0, 6.2, +1, 54, "triangular", 0.5, active=True, age_ka=75.0),
-    _Spec("Wickham Fault", -11.0, -8.6, -6.3, +1, 61, "triangular", 0.6, dip_known=False),
-    _Spec("Brindle Fault", 6.0, 9.0, -0.7, -1, 58, reversed=True, dip_known=False, dip_dir_known=False),
-    _Spec("Fernley Fault", -10.2, -7.4, 3.2, -1, 56, dip_known=False),
-    _Spec("Quoll Fault", 2.0, 5.2, -3.4, +1, 64, "triangular", 0.5, rot=-2.0, active=True, age_ka=40.0),
-    _Spec("Tern Fault", -4.6, -2.3, -5.6, -1, 59, "plateau", 0.5, 0.3, reversed=True),
+    _Spec("Ispravel Fault", 4.2, 9.6, 0.5, +1, 63, rot=-3.0, active=True, age_ka=120.0),
+    _Spec("Yselkor Fault", -10.5, -6.6, 1.8, +1, 50, "plateau", 0.5, 0.3, dip_dir_known=False),
+    _Spec("Fendrassik Fault", -3.0, 3.2, 2.7, +1, 68, "triangular", 0.45, bow=0.1, reversed=True),
+    _Spec("Mavrunel Fault", 4.8, 10.2, 3.6, -1, 52, "triangular", 0.55, dip_known=False),
+    _Spec("Quorrith Fault", -7.2, -3.6, 4.3, -1, 60, reversed=True),
+    _Spec("Hesparuk Fault", -2.2, 4.6, 5.4, -1, 47, "plateau", 0.6, 0.2, rot=2.5, active=True, age_ka=130.0),
+    _Spec("Truvelan Fault", 6.0, 10.6, -3.2, -1, 66, "plateau", 0.5, 0.4, dip_dir_known=False),
+    _Spec("Olmquessa Fault", 7.8, 11.0, 6.2, +1, 54, "triangular", 0.5, active=True, age_ka=75.0),
+    _Spec("Dravetsi Fault", -11.0, -8.6, -6.3, +1, 61, "triangular", 0.6, dip_known=False),
+    _Spec("Pelkiroth Fault", 6.0, 9.0, -0.7, -1, 58, reversed=True, dip_known=False, dip_dir_known=False),
+    _Spec("Zuvarne Fault", -10.2, -7.4, 3.2, -1, 56, dip_known=False),
+    _Spec("Nimmerov Fault", 2.0, 5.2, -3.4, +1, 64, "triangular", 0.5, rot=-2.0, active=True, age_ka=40.0),
+    _Spec("Ulvastro Fault", -4.6, -2.3, -5.6, -1, 59, "plateau", 0.5, 0.3, reversed=True),
 )
 # fmt: on
 
@@ -241,7 +241,7 @@ def demo_transects() -> gpd.GeoDataFrame:
 
 
 def demo_nodata_polygons() -> list[Polygon]:
-    """Return the nodata patch of the demo DEM (a gap over the NNE tip of the Orrin Fault)."""
+    """Return the nodata patch of the demo DEM (a gap over the NNE tip of the Fendrassik Fault)."""
     u = np.array([2.3, 3.3, 4.3, 4.1, 3.0, 2.2])
     v = np.array([1.9, 1.6, 2.1, 3.2, 3.4, 2.8])
     return [Polygon(_uv_to_xy(u, v))]
@@ -424,7 +424,7 @@ def _commit(tmp: pathlib.Path, final: pathlib.Path) -> None:
 
 
 def write_demo_area(folder: str | os.PathLike[str], *, scale: float = 1.0) -> dict[str, pathlib.Path]:
-    """Write the Merrivane Graben demo files into ``folder``.
+    """Write the Drovessin Graben demo files into ``folder``.
 
     Parameters
     ----------

@@ -5,19 +5,19 @@ the same physical way as the demo area: :func:`faultmap.synthetic.builder.build_
 moves each fault's hanging wall down by the throw and away by the heave
 (h = T / tan(dip)) on a pre-fault surface with a regional slope and gentle
 random relief, and a nodata patch is cut out. The scenes differ from the
-demo (Merrivane Graben: axis 20 deg, EPSG:32753, 22 faults, 25-83 m pixels,
+demo (Drovessin Graben: axis 20 deg, EPSG:32753, 22 faults, 25-83 m pixels,
 seed 532107) in seed, geometry, orientation, fault count, pixel size and
 CRS:
 
-* :func:`narrow_rift_scene` -- the Ostrel Trough: a graben with its axis at
+* :func:`narrow_rift_scene` -- the Skervolin Trough: a graben with its axis at
   35 deg in EPSG:32633, two border faults and eight intrabasinal faults in a
   faulted zone about 35 km across, three transects (one oblique), three
   active faults with surface ages.
-* :func:`scaling_scene` -- the Quenby Fault Field: a random population built
+* :func:`scaling_scene` -- the Plessovar Fault Field: a random population built
   with D = gamma L (n = 1), axis 140 deg, in a custom transverse Mercator
   CRS on GRS80; some traces digitised against the right-hand rule and some
   without a dip direction (the down-thrown side must come from the DEM).
-* :func:`wide_rift_scene` -- the Marrowind Rift Province: a wide rift about
+* :func:`wide_rift_scene` -- the Sundravelk Rift Province: a wide rift about
   300 km across, axis 75 deg, EPSG:32614, faults 20-80 km long with throws
   of hundreds of metres to about 2 km on coarse pixels.
 
@@ -247,7 +247,7 @@ def write_scene(folder, *, name: str, faults: gpd.GeoDataFrame, grid: dict, buil
 
 
 # ---------------------------------------------------------------------------
-# Scene 1: the Ostrel Trough (narrow rift, transects, active faults)
+# Scene 1: the Skervolin Trough (narrow rift, transects, active faults)
 # ---------------------------------------------------------------------------
 _OSTREL_CENTRE = (520_000.0, 2_990_000.0)  # EPSG:32633, about 27 N 15.2 E: no rift there
 _OSTREL_AXIS = 35.0
@@ -256,14 +256,14 @@ _OSTREL_AXIS = 35.0
 _OSTREL = (
     ("West Scarp Fault", -11.0, 11.0, -17.0, +1, 55.0, 640.0, "plateau", 0.4, -0.5, False, np.nan),
     ("East Scarp Fault", -10.0, 10.5, 17.0, -1, 60.0, 520.0, "plateau", 0.3, 0.4, False, np.nan),
-    ("Pike Fault", -9.5, 1.5, -11.0, +1, 62.0, 260.0, "elliptical", 0.0, 0.2, False, np.nan),
-    ("Rook Fault", 1.0, 11.0, -9.0, +1, 58.0, 230.0, "elliptical", 0.0, 0.0, False, np.nan),
-    ("Sedge Fault", -7.5, 7.5, -3.5, -1, 65.0, 300.0, "plateau", 0.2, -0.3, True, 180.0),
-    ("Tarrow Fault", -11.0, -1.0, 3.0, +1, 60.0, 190.0, "elliptical", 0.0, 0.0, True, 90.0),
-    ("Umber Fault", 0.5, 10.5, 5.5, -1, 57.0, 240.0, "elliptical", 0.0, 0.25, True, 300.0),
-    ("Vail Fault", -5.0, 5.5, 10.5, +1, 63.0, 210.0, "plateau", 0.3, 0.0, False, np.nan),
-    ("Wren Fault", 6.5, 11.0, 11.5, -1, 60.0, 120.0, "elliptical", 0.0, 0.0, False, np.nan),
-    ("Yew Fault", -11.0, -6.0, 11.5, -1, 61.0, 130.0, "elliptical", 0.0, 0.0, False, np.nan),
+    ("Abrunel Fault", -9.5, 1.5, -11.0, +1, 62.0, 260.0, "elliptical", 0.0, 0.2, False, np.nan),
+    ("Bestivar Fault", 1.0, 11.0, -9.0, +1, 58.0, 230.0, "elliptical", 0.0, 0.0, False, np.nan),
+    ("Corrumak Fault", -7.5, 7.5, -3.5, -1, 65.0, 300.0, "plateau", 0.2, -0.3, True, 180.0),
+    ("Dezzaloun Fault", -11.0, -1.0, 3.0, +1, 60.0, 190.0, "elliptical", 0.0, 0.0, True, 90.0),
+    ("Esquavin Fault", 0.5, 10.5, 5.5, -1, 57.0, 240.0, "elliptical", 0.0, 0.25, True, 300.0),
+    ("Fornelquo Fault", -5.0, 5.5, 10.5, +1, 63.0, 210.0, "plateau", 0.3, 0.0, False, np.nan),
+    ("Gastivvor Fault", 6.5, 11.0, 11.5, -1, 60.0, 120.0, "elliptical", 0.0, 0.0, False, np.nan),
+    ("Hurrolet Fault", -11.0, -6.0, 11.5, -1, 61.0, 130.0, "elliptical", 0.0, 0.0, False, np.nan),
 )
 _OSTREL_TRANSECTS = (  # name, u at v = 0 (km), azimuth offset from the across-axis direction (deg)
     ("Section North", 4.0, 0.0),
@@ -292,7 +292,7 @@ def _axis_faults(specs, *, centre_xy, axis_azimuth_deg, crs, n_vertices=9, hw_ex
 
 
 def narrow_rift_scene(folder, *, pixel_size_m: float = 100.0, hw_extent_factor: float = 1.0) -> Scene:
-    """Write the Ostrel Trough, a narrow graben (axis 35 deg, EPSG:32633).
+    """Write the Skervolin Trough, a narrow graben (axis 35 deg, EPSG:32633).
 
     Parameters
     ----------
@@ -313,7 +313,7 @@ def narrow_rift_scene(folder, *, pixel_size_m: float = 100.0, hw_extent_factor: 
         eight intrabasinal faults 4.5-15 km long with 120-300 m throw, dips
         55-65 deg) in a faulted zone about 35 km across, three transects
         (two across the axis, one 15 deg oblique), three active faults with
-        surface ages 90-300 ka, a nodata patch over the NE tip of the Wren
+        surface ages 90-300 ka, a nodata patch over the NE tip of the Gastivvor
         Fault.
     """
     crs = CRS.from_epsg(32633)
@@ -340,12 +340,12 @@ def narrow_rift_scene(folder, *, pixel_size_m: float = 100.0, hw_extent_factor: 
     build = dict(base_elevation_m=420.0, regional_slope_deg=0.35, regional_slope_azimuth_deg=300.0,
                  relief_m=3.0, relief_wavelength_m=max(5000.0, 40.0 * px),
                  scarp_width_m=max(200.0, 4.0 * px), seed=7_350_211, hanging_wall_smoothing=0.3)
-    return write_scene(folder, name="Ostrel Trough", faults=faults, grid=grid, build=build, nodata=nodata,
+    return write_scene(folder, name="Skervolin Trough", faults=faults, grid=grid, build=build, nodata=nodata,
                        axis_azimuth_deg=_OSTREL_AXIS, crs=crs, transects=transects, reversed_ids=(2, 6, 9))
 
 
 # ---------------------------------------------------------------------------
-# Scene 2: the Quenby Fault Field (D = gamma L, n = 1)
+# Scene 2: the Plessovar Fault Field (D = gamma L, n = 1)
 # ---------------------------------------------------------------------------
 _QUENBY_CRS = ("+proj=tmerc +lat_0=-5 +lon_0=-61.5 +k=1 +x_0=200000 +y_0=300000 "
                "+ellps=GRS80 +units=m +no_defs")
@@ -357,7 +357,7 @@ QUENBY_GAMMA = 0.025
 def scaling_scene(folder, *, pixel_size_m: float = 70.0, n_faults: int = 22,
                   half_extent_m: float = 11_000.0, length_range_m=(2800.0, 12_000.0),
                   seed: int = 4_401, hw_extent_factor: float = 1.0, profile_shape: str = "elliptical") -> Scene:
-    """Write the Quenby Fault Field: faults with max throw = gamma L exactly (n = 1).
+    """Write the Plessovar Fault Field: faults with max throw = gamma L exactly (n = 1).
 
     Parameters
     ----------
@@ -406,13 +406,13 @@ def scaling_scene(folder, *, pixel_size_m: float = 70.0, n_faults: int = 22,
     n = len(faults)
     rev = [i for i in (3, 8, 13) if i <= n]
     nodir = [i for i in (5, 11, 17) if i <= n]
-    return write_scene(folder, name="Quenby Fault Field", faults=faults, grid=grid, build=build, nodata=nodata,
+    return write_scene(folder, name="Plessovar Fault Field", faults=faults, grid=grid, build=build, nodata=nodata,
                        axis_azimuth_deg=_QUENBY_AXIS, crs=crs, reversed_ids=rev, no_dip_dir_ids=nodir,
                        gamma=QUENBY_GAMMA)
 
 
 # ---------------------------------------------------------------------------
-# Scene 3: the Marrowind Rift Province (wide rift)
+# Scene 3: the Sundravelk Rift Province (wide rift)
 # ---------------------------------------------------------------------------
 _MARROW_CENTRE = (450_000.0, 3_650_000.0)  # EPSG:32614, about 33 N 99.5 W: no rift there
 _MARROW_AXIS = 75.0
@@ -421,7 +421,7 @@ _MARROW_AXIS = 75.0
 def wide_rift_scene(folder, *, pixel_size_m: float = 800.0, n_faults: int = 34,
                     across_km: float = 300.0, along_km: float = 170.0, seed: int = 90_613,
                     hw_extent_factor: float = 1.0) -> Scene:
-    """Write the Marrowind Rift Province, a wide rift (axis 75 deg, EPSG:32614).
+    """Write the Sundravelk Rift Province, a wide rift (axis 75 deg, EPSG:32614).
 
     Parameters
     ----------
@@ -461,7 +461,7 @@ def wide_rift_scene(folder, *, pixel_size_m: float = 800.0, n_faults: int = 34,
     build = dict(base_elevation_m=1300.0, regional_slope_deg=0.15, regional_slope_azimuth_deg=230.0,
                  relief_m=15.0, relief_wavelength_m=max(40_000.0, 40.0 * px),
                  scarp_width_m=max(3200.0, 4.0 * px), seed=seed + 3, hanging_wall_smoothing=0.25)
-    return write_scene(folder, name="Marrowind Rift Province", faults=faults, grid=grid, build=build,
+    return write_scene(folder, name="Sundravelk Rift Province", faults=faults, grid=grid, build=build,
                        nodata=nodata, axis_azimuth_deg=_MARROW_AXIS, crs=crs, reversed_ids=(4, 9, 21))
 
 
@@ -474,7 +474,7 @@ def transect_truth(scene: Scene) -> pd.DataFrame:
     For every crossing of a transect with a trace, the true heave
     h = T / tan(dip) at that point of the trace (from the build), and its
     projection on the transect, h |cos(dip direction - transect azimuth)|
-    (methods.md, "Extension along transects").
+    (geometry, dip slip assumed; see docs/methods/extension.md).
 
     Returns
     -------
@@ -512,7 +512,7 @@ def heave_moment_truth(scene: Scene, *, step_m: float = 25.0) -> np.ndarray:
 
     M = sum_k (integral of h_k ds) m_k m_k^T, m_k = (sin dd, cos dd) in
     (east, north), m^2. Divided by an area it is the Kostrov (1974) strain
-    of that area in map view (methods.md, derived form).
+    of that area in map view (derived form; see docs/methods/extension.md).
 
     Returns
     -------
@@ -551,11 +551,11 @@ def across_axis_extent_km(scene: Scene, *, min_throw_frac: float = 0.0) -> float
 
 
 # ---------------------------------------------------------------------------
-# Scene 4: the Lintel Steps (close parallel faults far from the DEM edge)
+# Scene 4: the Orvanquil Steps (close parallel faults far from the DEM edge)
 # ---------------------------------------------------------------------------
 def close_faults_scene(folder, *, pixel_size_m: float = 50.0, spacing_m: float = 650.0,
                        isolated: bool = True) -> Scene:
-    """Write the Lintel Steps: three parallel faults closer than a profile needs, far from the DEM edge.
+    """Write the Orvanquil Steps: three parallel faults closer than a profile needs, far from the DEM edge.
 
     Every profile across the three faults meets a neighbouring trace within
     ``spacing_m``; with 50 m pixels and the default ten samples per side
@@ -592,7 +592,7 @@ def close_faults_scene(folder, *, pixel_size_m: float = 50.0, spacing_m: float =
     nodata = [shapely.Point(centre[0] + 6000.0, centre[1] + 6000.0).buffer(600.0)]
     build = dict(base_elevation_m=80.0, regional_slope_deg=0.2, regional_slope_azimuth_deg=20.0, relief_m=0.5,
                  relief_wavelength_m=2000.0, scarp_width_m=4.0 * px, seed=16_021)
-    return write_scene(folder, name="Lintel Steps", faults=faults, grid=grid, build=build, nodata=nodata,
+    return write_scene(folder, name="Orvanquil Steps", faults=faults, grid=grid, build=build, nodata=nodata,
                        axis_azimuth_deg=160.0, crs=crs)
 
 

@@ -1,10 +1,10 @@
-"""Tests of the fictional Merrivane Graben demo area (demo_area/).
+"""Tests of the fictional Drovessin Graben demo area (demo_area/).
 
 The demo is written once at scale 0.3 (360 x 360 pixels, same faults) and
 its files are checked against each other and against analytic geometry:
 heave = throw / tan(dip); vertical separation of a planar surface equals the
 throw when the surface has no slope across strike (Caskey 1995, derived);
-extension e = sum(h) / (L1 - sum(h)) (methods.md); D = gamma L with gamma
+extension e = sum(h) / (L1 - sum(h)) (definition, e.g. McKenzie 1978); D = gamma L with gamma
 about 0.01-0.03 (Schlische et al. 1996: D ~ 0.03 L; Cowie & Scholz 1992:
 gamma 1e-3 to 1e-1, from memory).
 """
@@ -40,7 +40,7 @@ SCALE = 0.3
 
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("merrivane")
+    folder = tmp_path_factory.mktemp("drovessin")
     paths = write_demo_area(folder, scale=SCALE)
     return folder, paths
 
@@ -66,7 +66,7 @@ def _merged(geom):
 
 def test_package_exports_and_fictional_name():
     assert demo_area.write_demo_area is write_demo_area
-    assert demo_area.SCENARIO_NAME == "Merrivane Graben"
+    assert demo_area.SCENARIO_NAME == "Drovessin Graben"
     assert demo_area.CRS_EPSG == 32753
 
 
@@ -264,7 +264,7 @@ def test_transect_truth_recomputed_from_stations(demo, truth, stations, user_fau
         sh = first[f"transect_{tid}_sum_heave_along_m"]
         assert sh == pytest.approx(total_along, rel=0.01)
         L1 = t.geometry.length
-        # e = (L1 - L0) / L0 with L0 = L1 - sum(h) (methods.md)
+        # e = (L1 - L0) / L0 with L0 = L1 - sum(h) (definition; check L1 100 km, sum(h) 5 km -> e 0.05263)
         assert first[f"transect_{tid}_extension"] == pytest.approx(sh / (L1 - sh), rel=1e-6)
         assert first[f"transect_{tid}_beta"] == pytest.approx(L1 / (L1 - sh), rel=1e-6)
         assert first[f"transect_{tid}_width_km"] == pytest.approx((max(pos) - min(pos)) / 1000.0, rel=1e-6)

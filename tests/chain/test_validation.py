@@ -22,7 +22,7 @@ expected values:
   gamma, with throw compared to throw.
 * transect / strain (issue 5): heave sums within 10 % of the sum of the true
   heaves at the crossings (projected on the transect as
-  h |cos(dip direction - transect azimuth)|, methods.md); Kostrov (1974,
+  h |cos(dip direction - transect azimuth)|, geometry, dip slip); Kostrov (1974,
   from memory) map-view strain in its derived form
   eps = (1/A) sum L h (m m), compared as the area-weighted sum over the
   cells, within 15 % with its extension axis within 8 deg.
@@ -34,7 +34,7 @@ expected values:
   Coppersmith (1994, BSSA 84, verified) normal-fault surface rupture length
   relation M = 4.86 + 1.32 log10(SRL km) within 0.15 of the value for the
   true length; slip rate = displacement / age of the offset surface
-  (methods.md) within 15 % of true throw / age.
+  (definition) within 15 % of true throw / age.
 """
 
 from __future__ import annotations
@@ -98,13 +98,13 @@ def _matched(scene, faults: pd.DataFrame) -> pd.DataFrame:
 
 @pytest.fixture(scope="module")
 def narrow(tmp_path_factory):
-    scene = narrow_rift_scene(tmp_path_factory.mktemp("ostrel"))
+    scene = narrow_rift_scene(tmp_path_factory.mktemp("skervolin"))
     return scene, _run(scene, ["transect", "strain", "width", "hazard"])
 
 
 @pytest.fixture(scope="module")
 def population(tmp_path_factory):
-    scene = scaling_scene(tmp_path_factory.mktemp("quenby"))
+    scene = scaling_scene(tmp_path_factory.mktemp("plessovar"))
     return scene, _run(scene, ["scaling"])
 
 
@@ -116,7 +116,7 @@ def peaked(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def wide(tmp_path_factory):
-    scene = wide_rift_scene(tmp_path_factory.mktemp("marrowind"))
+    scene = wide_rift_scene(tmp_path_factory.mktemp("sundravelk"))
     return scene, _run(scene, ["width"])
 
 

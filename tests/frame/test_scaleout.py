@@ -1,7 +1,7 @@
 """Scale-out (issue 8): the same layers in-process and on a Dask cluster, any batch size, DEMs larger
 than the memory budget, and failing workers.
 
-Scenes are synthetic and built by code (the Ostrel Trough of ``tests/scenes.py`` and straight faults
+Scenes are synthetic and built by code (the Skervolin Trough of ``tests/scenes.py`` and straight faults
 offsetting a planar surface, written here). References: the unpartitioned functions
 (:func:`faultmap.extension.kostrov.kostrov_grid`, :func:`faultmap.extension.transects.measure_transects`, themselves checked
 against Kostrov 1974 and the heave-summation definitions in test_strain.py / test_transect.py), and for
@@ -90,9 +90,9 @@ def cluster():
 
 
 @pytest.fixture(scope="module")
-def ostrel(tmp_path_factory):
-    """The Ostrel Trough and its in-process result with small batches."""
-    scene = narrow_rift_scene(tmp_path_factory.mktemp("ostrel"))
+def skervolin(tmp_path_factory):
+    """The Skervolin Trough and its in-process result with small batches."""
+    scene = narrow_rift_scene(tmp_path_factory.mktemp("skervolin"))
     with pytest.MonkeyPatch.context() as mp:
         _small_batches(mp)
         res = _run(scene.inputs(), scene.folder / "inproc.gpkg")
@@ -100,8 +100,8 @@ def ostrel(tmp_path_factory):
 
 
 # --------------------------------------------------------------------------- identical results
-def test_local_cluster_gives_identical_layers(ostrel, cluster, monkeypatch):
-    scene, ref = ostrel
+def test_local_cluster_gives_identical_layers(skervolin, cluster, monkeypatch):
+    scene, ref = skervolin
     _small_batches(monkeypatch)
     res = _run(scene.inputs(), scene.folder / "cluster.gpkg", engine=cluster)
     got = read_layers(res.gpkg)
@@ -113,13 +113,13 @@ def test_local_cluster_gives_identical_layers(ostrel, cluster, monkeypatch):
     assert_same_layers(ref, got)
 
 
-def test_project_engine_table_and_cli_scheduler(ostrel, cluster, monkeypatch, tmp_path):
+def test_project_engine_table_and_cli_scheduler(skervolin, cluster, monkeypatch, tmp_path):
     from click.testing import CliRunner
 
     from faultmap.cli import build_cli
     from faultmap.project import run_project
 
-    scene, ref = ostrel
+    scene, ref = skervolin
     _small_batches(monkeypatch)
     addr = cluster.client.scheduler.address
     proj = tmp_path / "project.toml"
@@ -143,7 +143,7 @@ def test_project_engine_table_and_cli_scheduler(ostrel, cluster, monkeypatch, tm
     assert_same_layers(read_layers(tmp_path / "cli_a.gpkg"), read_layers(tmp_path / "cli_b.gpkg"))
 
 
-def test_strain_tiles_match_the_whole_grid_for_any_tile_size(ostrel):
+def test_strain_tiles_match_the_whole_grid_for_any_tile_size(skervolin):
     from faultmap.extension.kostrov_pieces import (
         gather_kostrov_tiles,
         kostrov_grid,
@@ -151,7 +151,7 @@ def test_strain_tiles_match_the_whole_grid_for_any_tile_size(ostrel):
         plan_kostrov_tiles,
     )
 
-    _, ref = ostrel
+    _, ref = skervolin
     faults = gpd.GeoDataFrame(ref["faults"], geometry="geometry")
     stations = gpd.GeoDataFrame(ref["throw_stations"], geometry="geometry")
     for keep_empty in (False, True):
@@ -170,7 +170,7 @@ def test_strain_tiles_match_the_whole_grid_for_any_tile_size(ostrel):
                 assert whole[k] == pytest.approx(whole0[k], rel=1e-9, abs=1e-15), k
 
 
-def test_transect_batches_are_independent_of_batch_size(ostrel):
+def test_transect_batches_are_independent_of_batch_size(skervolin):
     from faultmap.extension.transect_measure import (
         gather_transect_batches,
         measure_transect_batch,
@@ -178,7 +178,7 @@ def test_transect_batches_are_independent_of_batch_size(ostrel):
         plan_transect_batches,
     )
 
-    scene, ref = ostrel
+    scene, ref = skervolin
     faults = gpd.GeoDataFrame(ref["faults"], geometry="geometry")
     stations = gpd.GeoDataFrame(ref["throw_stations"], geometry="geometry")
     tr = gpd.read_file(scene.transects, layer="transects")
@@ -204,8 +204,8 @@ def test_transect_batches_are_independent_of_batch_size(ostrel):
     np.testing.assert_allclose(t["sum_heave_along_err_m"], t1["sum_heave_along_err_m"], rtol=0.15)
 
 
-def test_throw_is_independent_of_the_batch_plan(ostrel, tmp_path):
-    scene, ref = ostrel
+def test_throw_is_independent_of_the_batch_plan(skervolin, tmp_path):
+    scene, ref = skervolin
     params = {"throw": {"memory_budget_mb": 512.0}}
     res = _run(scene.inputs(), tmp_path / "big.gpkg", tools=("throw",), params=params, engine=make_engine(threads=1))
     got = read_layers(res.gpkg)
@@ -350,7 +350,7 @@ def test_failing_worker_stops_the_run_writes_nothing_and_a_rerun_succeeds(tmp_pa
     assert_same_layers(ref, read_layers(res.gpkg))
 
 
-def test_transect_warnings_merged_across_batches_match_one_call(ostrel):
+def test_transect_warnings_merged_across_batches_match_one_call(skervolin):
     """Per-transect warnings, merged, read as those of one unpartitioned call (same ids, same text)."""
     import warnings
 
@@ -362,7 +362,7 @@ def test_transect_warnings_merged_across_batches_match_one_call(ostrel):
         plan_transect_batches,
     )
 
-    scene, ref = ostrel
+    scene, ref = skervolin
     faults = gpd.GeoDataFrame(ref["faults"], geometry="geometry")
     stations = gpd.GeoDataFrame(ref["throw_stations"], geometry="geometry")
     # fault 4 loses its throw (no stations, no max_throw_m); two extra transects: one far from every
