@@ -118,7 +118,7 @@ def _batches_only(faults, dem, params, engine):
     from functools import partial
 
     from faultmap.engine import engine_map
-    from faultmap.throw.step import plan_batches, run_batch
+    from faultmap.throw import plan_batches, run_batch
 
     return engine_map(engine, partial(run_batch, dem=dem, params=params), plan_batches(faults, dem, params))
 
@@ -153,7 +153,7 @@ def main(argv=None):
 
     from faultmap.engine import make_engine
     from faultmap.io.dem import open_dem
-    from faultmap.throw.step import plan_batches, resolve_params
+    from faultmap.throw import plan_batches, resolve_params
 
     n_pix, n_faults, budget = (3000, 300, 16.0) if a.small else (8000, 2000, 64.0)
     budget = a.budget_mb or budget

@@ -200,13 +200,13 @@ def breakdown(faults, dem, rounds=3):
     (``faultmap.io.dem.read_window_array``), bilinear sampling
     (``faultmap.throw.profiles.sample_profiles``), the profile fits
     (``faultmap.throw.profiles.fit_profile_matrix``) and the along-strike smoothing
-    (``faultmap.throw.along_strike._smooth_chunk``); the rest (stations, crossings,
+    (``faultmap.throw.smoothing._smooth_chunk``); the rest (stations, crossings,
     per-station results, gathering, side, summaries, station points) is the
     whole step minus these.
     """
     import faultmap.io.dem as dem_io
-    import faultmap.throw.along_strike as along
     import faultmap.throw.profiles as profiles
+    import faultmap.throw.smoothing as smoothing
     from faultmap.throw.step import measure_throw
 
     spent = {"read": 0.0, "sample": 0.0, "fit": 0.0, "smooth": 0.0}
@@ -214,7 +214,7 @@ def breakdown(faults, dem, rounds=3):
         (dem_io, "read_window_array", "read"),
         (profiles, "sample_profiles", "sample"),
         (profiles, "fit_profile_matrix", "fit"),
-        (along, "_smooth_chunk", "smooth"),
+        (smoothing, "_smooth_chunk", "smooth"),
     ]
     saved = [(mod, name, getattr(mod, name)) for mod, name, _ in patches]
 

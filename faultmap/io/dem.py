@@ -372,7 +372,7 @@ def read_window_array(
                 file_nodata = src.nodatavals[dem.band - 1]
     except rasterio.errors.RasterioIOError as exc:  # pragma: no cover - disk errors
         raise InputFileError(f"{dem.path}: cannot read DEM window ({exc}).") from exc
-    from faultmap.throw import kernels
+    from faultmap.io import dem_jit as kernels
 
     voids = list(dem._extra_voids)
     for v in (dem.nodata, file_nodata):

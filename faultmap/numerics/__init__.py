@@ -1,6 +1,7 @@
 """Shared mathematics used by several analyses.
 
-Shared mathematics: axial (doubled-angle) directions and the hillshade of a DEM array.
+Shared mathematics: axial (doubled-angle) directions and the hillshade of a DEM array;
+:mod:`faultmap.numerics.jit` holds the numba setup shared by the compiled kernels.
 
 Each public name below is imported from its module on first use, so reading the
 package (or its tool declaration) stays light.

@@ -1,7 +1,8 @@
 """Throw along every fault trace from the DEM.
 
 Throw along every fault trace from the DEM: stations, scarp-profile fits, along-strike
-smoothing, linked systems, batches for the engine, compiled kernels, the ``throw`` tool and its figures.
+smoothing and per-fault summaries, linked systems, batches for the engine, compiled kernels,
+the ``throw`` tool and its figures.
 
 Each public name below is imported from its module on first use, so reading the
 package (or its tool declaration) stays light.
@@ -25,7 +26,7 @@ _EXPORTS = {
     "plan_batches": "batches",
     "finalise_stations": "step",
     "infer_downthrown_side": "step",
-    "summarise_faults": "along_strike",
+    "summarise_faults": "fault_summaries",
     "linkage_zones": "linkage",
     "system_profile": "linkage",
     "measure_throw": "step",

@@ -283,7 +283,7 @@ def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols
     -------
     matplotlib.figure.Figure
     """
-    from faultmap.throw.step import _station_lookup, system_profile
+    from faultmap.throw.linkage import _station_lookup, system_profile
 
     if "system_id" in faults.columns:
         counts = faults["system_id"].value_counts()

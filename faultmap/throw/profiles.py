@@ -15,7 +15,8 @@ import math
 
 import numpy as np
 
-from faultmap.throw import kernels
+from faultmap.numerics import jit
+from faultmap.throw.profiles_jit import bilinear_profiles
 from faultmap.throw.scarp_fit import fit_profile_matrix
 from faultmap.throw.stations import StationSet
 
@@ -87,7 +88,7 @@ def sample_profiles(
         value does not depend on which window holds it. Default: the
         window's own pixels.
     use_jit : bool
-        Use the compiled kernel :func:`faultmap.throw.kernels.bilinear_profiles`
+        Use the compiled kernel :func:`faultmap.throw.profiles_jit.bilinear_profiles`
         when numba is available (the same numbers as the array code below,
         which stays as the reference).
 
@@ -135,9 +136,9 @@ def sample_profiles(
     drow = (np.concatenate([-ny, ny]) * (step * inv_e)).astype(_F32)
     i0 = np.floor(r0)
     j0 = np.floor(c0)
-    if use_jit and kernels.ENABLED:
+    if use_jit and jit.ENABLED:
         kr = np.full(2 * m, K, dtype=np.int64) if k_row is None else np.concatenate([k_row, k_row])
-        return kernels.bilinear_profiles(
+        return bilinear_profiles(
             np.ascontiguousarray(arr).reshape(-1),
             nr,
             nc,

@@ -16,7 +16,8 @@ import math
 
 import numpy as np
 
-from faultmap.throw import kernels
+from faultmap.numerics import jit
+from faultmap.throw.robust_lines_jit import robust_windows
 
 __all__ = ["CONVERGENCE_TOL", "MAX_ITERATIONS", "robust_line_fits"]
 
@@ -456,7 +457,7 @@ def _fit_windows(Z0, valid, rows, lo, hi, *, init=None, use_jit=True, **kw):
     back), rows of similar window length together, so no pass touches
     samples outside the windows. With ``use_jit`` (default) and numba
     available, the compiled per-row kernel
-    :func:`faultmap.throw.kernels.robust_windows` does the same arithmetic
+    :func:`faultmap.throw.robust_lines_jit.robust_windows` does the same arithmetic
     instead.
     """
     K = Z0.shape[1]
@@ -464,10 +465,10 @@ def _fit_windows(Z0, valid, rows, lo, hi, *, init=None, use_jit=True, **kw):
     e = np.clip(np.floor(hi) - 1, -1, K - 1).astype(np.int64)  # last column with d <= hi
     L = np.maximum(e - s + 1, 0)
     nr = rows.size
-    if use_jit and kernels.ENABLED:
+    if use_jit and jit.ENABLED:
         mi = kw.get("max_iterations")
         cap = max(int(kw["iterations"]), int(MAX_ITERATIONS if mi is None else mi))
-        return kernels.robust_windows(
+        return robust_windows(
             np.ascontiguousarray(Z0, dtype=_F32),
             np.ascontiguousarray(valid, dtype=bool),
             rows,

@@ -5,9 +5,8 @@ Two things, as array operations over many profiles at once:
 * :func:`separation_from_throw` / :func:`throw_from_separation`: vertical
   separation of a planar surface offset by a dip-slip fault (Caskey 1995).
 * :func:`fit_profile_matrix`: both sides of many scarp profiles: the scarp
-  zone left out of the fits, the far-field lines (robust straight lines of
-  :mod:`faultmap.throw.robust_lines`, re-exported here as :func:`robust_line_fits`)
-  and the separation.
+  zone left out of the fits, the far-field lines (robust straight lines,
+  :func:`faultmap.throw.robust_lines.robust_line_fits`) and the separation.
 """
 
 from __future__ import annotations
@@ -16,13 +15,13 @@ import warnings as _warnings
 
 import numpy as np
 
-from faultmap.throw import kernels
-from faultmap.throw.robust_lines import _fit_windows, robust_line_fits
+from faultmap.numerics import jit
+from faultmap.throw.robust_lines import _fit_windows
+from faultmap.throw.scarp_fit_jit import profile_gradients, scarp_edges
 
 __all__ = [
     "separation_from_throw",
     "throw_from_separation",
-    "robust_line_fits",
     "fit_profile_matrix",
 ]
 
@@ -211,7 +210,7 @@ def fit_profile_matrix(
     min_samples : int
         Samples a side needs for its fit to be kept.
     loss, tuning, iterations
-        Robust fit settings (:func:`robust_line_fits`).
+        Robust fit settings (:func:`faultmap.throw.robust_lines.robust_line_fits`).
     scarp_iterations : int
         Times the scarp edges are re-detected and the lines refitted.
     tolerance_frac : float
@@ -222,9 +221,10 @@ def fit_profile_matrix(
         remaining columns NaN): a row then gives the same result as in a
         matrix of its own length. Default ``k`` for all.
     use_jit : bool
-        Use the compiled kernels of :mod:`faultmap.throw.kernels` (when numba is
-        available) for the gradients, the robust fits and the scarp edges; ``False`` runs
-        the array code they repeat (the same numbers).
+        Use the compiled kernels (when numba is available) for the gradients
+        and the scarp edges (:mod:`faultmap.throw.scarp_fit_jit`) and the robust
+        fits (:mod:`faultmap.throw.robust_lines_jit`); ``False`` runs the array
+        code they repeat (the same numbers).
 
     Returns
     -------
@@ -275,8 +275,8 @@ def fit_profile_matrix(
     n_it = int(scarp_iterations)
     grads = None
     if n_it > 0 and K >= 10:
-        if use_jit and kernels.ENABLED:
-            grads = (*kernels.profile_gradients(Zc, lim, row_samples), Zc[:, 0])
+        if use_jit and jit.ENABLED:
+            grads = (*profile_gradients(Zc, lim, row_samples), Zc[:, 0])
         else:
             grads = _profile_gradients(Zc, lim, row_samples)
     del Zc
@@ -336,8 +336,8 @@ def fit_profile_matrix(
             si = np.flatnonzero(todo)
             rr = np.concatenate([si, si + n])
             g, bg, zf = grads
-            if use_jit and kernels.ENABLED:
-                f_s, e_s = kernels.scarp_edges(g, bg, zf, sc[rr], up[rr], lim[rr], rr, si.size, m_run)
+            if use_jit and jit.ENABLED:
+                f_s, e_s = scarp_edges(g, bg, zf, sc[rr], up[rr], lim[rr], rr, si.size, m_run)
             else:
                 f_s, e_s = _scarp_edges(g[rr], bg[rr], zf[rr], sc[rr], up[rr], lim[rr], si.size, m_run)
             found[rr] = f_s

@@ -24,7 +24,8 @@ from dataclasses import dataclass
 import numpy as np
 import shapely
 
-from faultmap.throw import kernels
+from faultmap.numerics import jit
+from faultmap.throw.stations_jit import box_pairs
 
 __all__ = [
     "StationSet",
@@ -303,7 +304,7 @@ def _overlapping(px, py, nx, ny, H, seg, *, use_jit=True):
     """Pairs (profile, segment) whose bounding boxes overlap."""
     ax, ay = px - H * nx, py - H * ny
     bx, by = px + H * nx, py + H * ny
-    if use_jit and kernels.ENABLED:
+    if use_jit and jit.ENABLED:
         q = np.c_[np.minimum(ax, bx), np.minimum(ay, by), np.maximum(ax, bx), np.maximum(ay, by)]
         sb = np.c_[
             np.minimum(seg[:, 0], seg[:, 2]),
@@ -311,7 +312,7 @@ def _overlapping(px, py, nx, ny, H, seg, *, use_jit=True):
             np.maximum(seg[:, 0], seg[:, 2]),
             np.maximum(seg[:, 1], seg[:, 3]),
         ]
-        return kernels.box_pairs(q, sb)
+        return box_pairs(q, sb)
     prof = shapely.linestrings(np.stack([np.c_[ax, ay], np.c_[bx, by]], axis=1))
     tree = shapely.STRtree(shapely.linestrings(seg.reshape(-1, 2, 2)))
     return tree.query(prof)
@@ -346,7 +347,7 @@ def crossing_limits(
         Crossings of the own trace closer than this are the station itself.
     use_jit : bool
         Find the candidate pairs with the compiled grid of
-        :func:`faultmap.throw.kernels.box_pairs` (default, when numba is
+        :func:`faultmap.throw.stations_jit.box_pairs` (default, when numba is
         available) rather than a ``shapely.STRtree``: the same pairs.
 
     Returns

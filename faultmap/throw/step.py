@@ -26,8 +26,8 @@ batches are independent so that an engine can run them anywhere.
 
 This module holds the step itself (:func:`measure_throw`), the down-thrown
 side and the conversion of raw separations to throws; the parts live in
-modules named for what they compute, and their public names are re-exported
-here:
+modules named for what they compute (their public names are listed in
+:mod:`faultmap.throw`):
 
 * :mod:`faultmap.throw.params`: parameters, checked and adapted to the DEM;
 * :mod:`faultmap.throw.stations`: stations, normals, crossing traces;
@@ -35,8 +35,15 @@ here:
 * :mod:`faultmap.throw.scarp_fit`: scarp zone and far-field fits, Caskey (1995);
 * :mod:`faultmap.throw.robust_lines`: robust straight-line fits of many lines at once;
 * :mod:`faultmap.throw.batches`: tiles of the DEM as independent batches;
-* :mod:`faultmap.throw.along_strike`: smoothed along-strike profiles, per-fault figures;
+* :mod:`faultmap.throw.smoothing`: smoothed along-strike profiles;
+* :mod:`faultmap.throw.fault_summaries`: per-fault figures (maximum, mean throw, heave integral);
 * :mod:`faultmap.throw.linkage`: linkage zones of linked systems.
+
+The innermost loops run as compiled kernels (numba), each beside the array
+code it repeats (``profiles_jit``, ``robust_lines_jit``, ``scarp_fit_jit``,
+``stations_jit``, ``smoothing_jit``; shared setup in
+:mod:`faultmap.numerics.jit`); :func:`compiled_on_disk` says whether they
+are compiled yet.
 """
 
 from __future__ import annotations
@@ -51,51 +58,20 @@ import shapely
 
 from faultmap.engine import old_objects_frozen
 from faultmap.errors import CRSError, InputError, ParameterError
-from faultmap.throw.along_strike import (  # noqa: F401  (re-exported)
-    SMOOTHING_CANDIDATES,
-    _smooth_profiles,
-    summarise_faults,
-)
-from faultmap.throw.batches import (  # noqa: F401  (re-exported)
-    ThrowBatch,
-    _raw_frame,
-    _side_signs_for,
-    measure_batch,
-    plan_batches,
-    run_batch,
-)
-from faultmap.throw.linkage import _station_lookup, linkage_zones, system_profile  # noqa: F401  (re-exported)
+from faultmap.numerics import jit
+from faultmap.throw.batches import _raw_frame, _side_signs_for, plan_batches, run_batch
+from faultmap.throw.fault_summaries import summarise_faults
+from faultmap.throw.linkage import linkage_zones
 from faultmap.throw.params import ThrowParams, resolve_params
 from faultmap.throw.profiles import RAW_COLUMNS as _RAW_COLUMNS
-from faultmap.throw.profiles import measure_profiles, sample_profiles  # noqa: F401  (re-exported)
-from faultmap.throw.scarp_fit import (  # noqa: F401  (re-exported)
-    fit_profile_matrix,
-    robust_line_fits,
-    separation_from_throw,
-    throw_from_separation,
-)
 from faultmap.throw.stations import StationSet, place_stations
 from faultmap.traces.conditioning import _ids
 
 __all__ = [
-    "ThrowParams",
-    "ThrowBatch",
     "ThrowResult",
     "STATUS_VALUES",
-    "resolve_params",
-    "separation_from_throw",
-    "throw_from_separation",
-    "robust_line_fits",
-    "fit_profile_matrix",
-    "measure_profiles",
-    "measure_batch",
-    "run_batch",
-    "plan_batches",
     "finalise_stations",
     "infer_downthrown_side",
-    "summarise_faults",
-    "linkage_zones",
-    "system_profile",
     "measure_throw",
 ]
 
@@ -553,3 +529,21 @@ def measure_throw(
         faults=f, stations=stations, linkage_zones=lz, warnings=warns, params=params, n_samples=n_samples,
         n_batches=len(batches),
     )
+
+
+def compiled_on_disk() -> bool | None:
+    """Whether numba's on-disk cache already holds the throw step's compiled kernels.
+
+    ``False`` means the next run compiles them (about 13 s, once per
+    environment); ``None`` when it cannot tell (numba's cache layout is not
+    a public interface). Always ``True`` when the kernels are disabled
+    (:func:`faultmap.numerics.jit.compiled_on_disk`).
+    """
+    # kernels of every compiled module the step runs
+    from faultmap.throw.profiles_jit import _bilinear_rows
+    from faultmap.throw.robust_lines_jit import _converge
+    from faultmap.throw.scarp_fit_jit import _gradients
+    from faultmap.throw.smoothing_jit import _cv_choice, _final_fit
+    from faultmap.throw.stations_jit import _grid_query
+
+    return jit.compiled_on_disk((_bilinear_rows, _gradients, _cv_choice, _final_fit, _converge, _grid_query))

@@ -18,7 +18,8 @@ _FIGURES = ("throw_map.png", "throw_profiles.png", "throw_systems.png")
 
 def run(ctx, p: dict) -> None:
     """Measure throw along the prepared traces and store the layers."""
-    from faultmap.throw.step import measure_throw, resolve_params
+    from faultmap.throw.params import resolve_params
+    from faultmap.throw.step import measure_throw
 
     faults = ctx.faults
     if faults is None:
@@ -56,9 +57,9 @@ def run(ctx, p: dict) -> None:
         def mapper(func, batches, prog):
             return ctx.engine.map(func, batches, progress=prog)
 
-    from faultmap.throw import kernels
+    from faultmap.throw import step
 
-    if kernels.compiled_on_disk() is False:
+    if step.compiled_on_disk() is False:
         ctx.info("first run in this environment: compiling faultmap's kernels (about 13 s, once).")
     res = measure_throw(faults, dem, params=params, mapper=mapper, progress=progress, min_batches=min_batches)
     for w in res.warnings:
@@ -134,7 +135,7 @@ def _relink(ctx, res, params) -> None:
     with the down-thrown side measured, segments dipping opposite ways are split
     (and linkage zones recomputed) with the same link parameters.
     """
-    from faultmap.throw.step import linkage_zones
+    from faultmap.throw.linkage import linkage_zones
     from faultmap.traces.conditioning import link_systems
 
     link = ctx.results.get("prepare")

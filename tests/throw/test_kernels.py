@@ -8,7 +8,7 @@ for the robust lines. Here the kernels must reproduce it bit for bit
 (the same float32 operations in the same order), including voids, window
 edges, short and empty windows, warm starts and every loss.
 
-The along-strike smoothing kernel (faultmap.throw.kernels.smooth_stations) sums
+The along-strike smoothing kernel (faultmap.throw.smoothing_jit.smooth_stations) sums
 station by station where the array code uses matrix products, so it agrees
 to rounding (1e-9 relative), with the same outliers and the same
 cross-validated widths; the array code is checked analytically in
@@ -23,11 +23,14 @@ import numpy as np
 import pytest
 from rasterio.transform import from_origin
 
-from faultmap.throw import kernels
+from faultmap.io.dem_jit import voids_to_nan
+from faultmap.numerics import jit
 from faultmap.throw.profiles import sample_profiles
 from faultmap.throw.robust_lines import _fit_windows
+from faultmap.throw.scarp_fit_jit import profile_gradients
+from faultmap.throw.stations_jit import box_pairs
 
-pytestmark = pytest.mark.skipif(not kernels.ENABLED, reason="numba kernels disabled (FAULTMAP_NO_JIT)")
+pytestmark = pytest.mark.skipif(not jit.ENABLED, reason="numba kernels disabled (FAULTMAP_NO_JIT)")
 
 
 def _same(a, b):
@@ -134,7 +137,7 @@ def test_box_pairs_match_strtree():
     b[80:120, 0] = q[:40, 2]  # touching the right edge of a query box
     b[80:120, 2] = b[80:120, 0] + 5.0
     b[120:125] += 5000.0  # outside everything
-    i, j = kernels.box_pairs(q, b)
+    i, j = box_pairs(q, b)
     tree = shapely.STRtree(shapely.box(b[:, 0], b[:, 1], b[:, 2], b[:, 3]))
     ri, rj = tree.query(shapely.box(q[:, 0], q[:, 1], q[:, 2], q[:, 3]))
     assert set(zip(i.tolist(), j.tolist(), strict=True)) == set(zip(ri.tolist(), rj.tolist(), strict=True))
@@ -175,7 +178,7 @@ def test_voids_to_nan_matches_the_array_rule():
     ref = a.copy()
     bad = (ref == np.float32(-9999.0)) | (ref == np.float32(-3.4028234663852886e38)) | np.isinf(ref)
     ref[bad] = np.nan
-    kernels.voids_to_nan(a, voids)
+    voids_to_nan(a, voids)
     assert int(np.isnan(a).sum()) == int(np.isnan(ref).sum()) > 500
     assert _same(a, ref)
 
@@ -195,7 +198,7 @@ def test_profile_gradients_kernel_matches_array_code(short_rows):
         rs = rng.integers(2, K + 1, R2)
         Zc[np.arange(K)[None, :] >= rs[:, None]] = np.nan
     g_ref, bg_ref, z_ref = _profile_gradients(Zc, lim, rs)
-    g, bg = kernels.profile_gradients(Zc, lim, rs)
+    g, bg = profile_gradients(Zc, lim, rs)
     assert _same(g, g_ref) and _same(bg, bg_ref)
     assert (bg_ref[:30] == 0).all() and np.count_nonzero(bg_ref) > R2 // 2
 
@@ -239,7 +242,7 @@ def test_whole_profile_fit_same_with_and_without_kernels():
 
 @pytest.mark.parametrize("sigma", [None, 1.3, 0.0])
 def test_smoothing_kernel_matches_array_code(sigma):
-    from faultmap.throw.along_strike import _smooth_chunk
+    from faultmap.throw.smoothing import _smooth_chunk
 
     rng = np.random.default_rng(5)
     n_g = 400

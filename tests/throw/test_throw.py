@@ -19,8 +19,7 @@ from rasterio.transform import from_origin
 
 from faultmap.errors import InputError, ParameterError
 from faultmap.io.dem import open_dem
-from faultmap.throw.stations import crossing_limits, place_stations, side_signs, station_distances
-from faultmap.throw.step import (
+from faultmap.throw import (
     fit_profile_matrix,
     measure_throw,
     resolve_params,
@@ -28,6 +27,7 @@ from faultmap.throw.step import (
     separation_from_throw,
     throw_from_separation,
 )
+from faultmap.throw.stations import crossing_limits, place_stations, side_signs, station_distances
 
 CRS = "EPSG:32633"
 PX = 10.0
@@ -94,7 +94,7 @@ def one_fault(x, y0, y1, *, dip=60.0, dip_dir=90.0, fid=1):
 # Caskey (1995) relation
 # ---------------------------------------------------------------------------
 def test_caskey_check_values():
-    # Caskey (1995), J. Struct. Geol. 17; check values (derived from the geometry):
+    # Caskey (1995), J. Struct. Geol. 17; check values in shared/methods.md (derived):
     # T 10 m, dip 60, theta 10 -> VS 8.9820 m; surface sloping the other way -> 11.0180 m
     assert separation_from_throw(10.0, dip_deg=60.0, surface_slope_deg=10.0) == pytest.approx(
         8.9820, abs=5e-5
@@ -109,7 +109,7 @@ def test_caskey_check_values():
 
 
 def test_finalise_applies_caskey_on_the_hanging_wall_side_and_leaves_its_input():
-    # Caskey (1995) check values (derived): T 10 m, dip 60, surface 10 deg descending towards
+    # Caskey (1995) check values (shared/methods.md): T 10 m, dip 60, surface 10 deg descending towards
     # the hanging wall -> VS 8.9820 m; the other way -> 11.0180 m. Raw separations are measured + side
     # down (slope_plus = dz/du towards the + side); a fault whose - side is the hanging wall flips both.
     import pandas as pd
@@ -280,7 +280,7 @@ def test_analytic_scarp_throw(tmp_path, dip, theta, noise):
     mx, err = res.faults[["max_throw_m", "max_throw_err_m"]].iloc[0]
     assert abs(mx - T) <= max(0.02 * T, 3.0 * err)
     assert err < 0.05 * T
-    # vertical separation: Caskey (1995) VS = T (1 - tan(theta)/tan(dip)); derived check values
+    # vertical separation: Caskey (1995) VS = T (1 - tan(theta)/tan(dip)); methods.md check values
     vs_expected = separation_from_throw(T, dip_deg=dip, surface_slope_deg=theta)
     assert np.median(st.loc[ok, "vert_sep_m"]) == pytest.approx(vs_expected, rel=0.02 if noise else 0.002)
     assert np.median(st.loc[ok, "surface_slope_deg"]) == pytest.approx(theta, abs=0.3)
@@ -294,7 +294,7 @@ def test_analytic_scarp_throw(tmp_path, dip, theta, noise):
 
 
 def test_caskey_values_recovered_from_dem(tmp_path):
-    # Caskey (1995) check values (derived): T 10 m, dip 60, theta 10 -> VS 8.9820 m; other way 11.0180 m
+    # methods.md check values (Caskey 1995): T 10 m, dip 60, theta 10 -> VS 8.9820 m; other way 11.0180 m
     for theta, vs in ((10.0, 8.9820), (-10.0, 11.0180)):
         z = analytic_scarp(120, 200, x_fault=1000.0, throw=10.0, dip=60.0, theta=theta)
         dem = open_dem(write_tif(tmp_path / f"c{theta}.tif", z))
@@ -418,7 +418,7 @@ def test_reversal_changes_nothing_and_dip_dir_from_dem(synthetic_scene):
 def test_batches_independent_of_memory_budget(synthetic_scene):
     # engineering: tiling the work (small memory budget -> many batches) gives the same numbers,
     # and the Dem handed to batches is picklable (it carries the path, not an open dataset)
-    from faultmap.throw.step import plan_batches
+    from faultmap.throw import plan_batches
 
     f, dem, _ = synthetic_scene
     pickle.loads(pickle.dumps(dem))
@@ -739,9 +739,10 @@ def test_throw_tool_end_to_end(tmp_path):
 def test_first_run_compile_is_announced(tmp_path, monkeypatch):
     # a fresh environment compiles the kernels (about 13 s) before the first batch: the tool says so
     # instead of sitting silent; once compiled, numba's on-disk cache holds them (common practice)
+    from faultmap.numerics import jit
     from faultmap.runner import run_tools
     from faultmap.synthetic.builder import build_dem, parallel_faults
-    from faultmap.throw import kernels
+    from faultmap.throw import step
 
     f = parallel_faults(1, spacing_m=900.0, length_m=[1600.0], throw_m=[10.0], dip_dir_deg=90.0,
                         centre_xy=(1000.0, 1000.0), crs=CRS)
@@ -749,13 +750,13 @@ def test_first_run_compile_is_announced(tmp_path, monkeypatch):
     tif = write_tif(tmp_path / "dem.tif", z, y0=2000.0)
     f[["geometry"]].to_file(tmp_path / "traces.gpkg", layer="traces")
     said = []
-    monkeypatch.setattr(kernels, "compiled_on_disk", lambda: False)
+    monkeypatch.setattr(step, "compiled_on_disk", lambda: False)
     run_tools(["throw"], inputs={"faults": tmp_path / "traces.gpkg", "dem": tif}, out=tmp_path / "o.gpkg",
               echo=said.append)
     assert any("compiling faultmap's kernels" in m for m in said)
     monkeypatch.undo()
-    if kernels.ENABLED:
-        assert kernels.compiled_on_disk() is True  # the run above used (and cached) every kernel
+    if jit.ENABLED:
+        assert step.compiled_on_disk() is True  # the run above used (and cached) every kernel
 
 
 def test_window_reader_voids(tmp_path):
@@ -815,7 +816,7 @@ def test_no_measurable_station_still_completes(tmp_path):
 def test_profile_smoothing_recovers_shapes_and_is_chunk_invariant():
     # analytic: a parabolic throw profile is reproduced by the local quadratic (Cleveland 1979); a noisy
     # constant profile is smoothed (its scatter shrinks); chunks of whole faults change nothing
-    from faultmap.throw.step import _smooth_profiles
+    from faultmap.throw.smoothing import _smooth_profiles
 
     rng = np.random.default_rng(7)
     g = np.repeat(np.arange(300), 24)
@@ -866,7 +867,7 @@ def test_downthrown_side_is_the_weighted_sign_and_confidence_the_agreeing_fracti
 def test_grouped_integral_matches_numpy_trapezoid_in_any_order():
     # reference library: numpy.trapezoid of each group's profile, closed by zero at 0 and at L (the
     # tips); stations in any order give the same numbers, ties included (a station exactly at a tip)
-    from faultmap.throw.along_strike import _grouped_trapz, _sorted_by_group
+    from faultmap.throw.fault_summaries import _grouped_trapz, _sorted_by_group
 
     rng = np.random.default_rng(11)
     n_g = 40
