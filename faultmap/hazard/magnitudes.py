@@ -62,7 +62,7 @@ __all__ = [
     "preferred_magnitude",
 ]
 
-#: Crustal shear modulus, Pa (common practice; methods.md).
+#: Crustal shear modulus, Pa (common practice; see docs/methods/hazard.md).
 SHEAR_MODULUS_PA = 3.0e10
 
 

@@ -21,7 +21,7 @@ Notes
 Magnitude relations: Wells & Coppersmith (1994, BSSA 84), Hanks & Bakun
 (2002, BSSA 92), see :mod:`faultmap.hazard.magnitudes`. Slip rate = displacement /
 age of the offset surface; recurrence = single-event displacement / slip rate
-(methods.md). Zone widths are common practice (from memory), not a code.
+(definitions; see docs/methods/hazard.md). Zone widths are common practice (from memory), not a code.
 
 The work is split by what it computes; this module runs it all
 (:func:`screen_hazard`), and holds :data:`CAUTION`; the parts (public names

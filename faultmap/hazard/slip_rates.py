@@ -1,7 +1,7 @@
 """Slip rates with Monte Carlo percentiles, and recurrence intervals.
 
 Slip rate = displacement / age of the offset surface; recurrence =
-single-event displacement / net slip rate (methods.md). Throw, age and dip
+single-event displacement / net slip rate (definitions; docs/methods/hazard.md). Throw, age and dip
 are drawn by Monte Carlo; the percentiles are reported. Pure functions, no
 file I/O.
 Everything here is a screening estimate; see :data:`faultmap.hazard.screening.CAUTION`.
@@ -63,8 +63,8 @@ def slip_rate_draws(
     Throw ~ normal(throw, err) truncated at 0; age ~ log-normal with median
     ``age_ka`` and coefficient of variation ``age_err_ka / age_ka``; dip ~
     uniform. Vertical rate = T / t; horizontal (heave, extension) rate =
-    T / (t tan dip); net dip-slip rate = T / (t sin dip) (geometry;
-    methods.md).
+    T / (t tan dip); net dip-slip rate = T / (t sin dip) (geometry,
+    derived).
     """
     throw = np.asarray(throw_m, float)[:, None]
     terr = np.asarray(throw_err_m, float)[:, None]
@@ -137,7 +137,7 @@ def slip_rates(
         Absolute 1-sigma age error, ka (overrides ``age_rel_err``).
     dip_range_deg : float, optional
         Half-width of the uniform dip range drawn, degrees (default 10;
-        methods.md: +-10-15 degrees for an unknown normal-fault dip).
+        common practice: +-10-15 degrees for an unknown normal-fault dip).
     n_draws, seed : int, optional
         Monte Carlo draws per fault and random seed.
     max_age_ka : float, optional
@@ -176,7 +176,7 @@ def slip_rates(
     Notes
     -----
     Slip rate = displacement / age of the offset surface; recurrence =
-    single-event displacement / net slip rate (methods.md). 1 m / 1 ka =
+    single-event displacement / net slip rate (definitions). 1 m / 1 ka =
     1 mm/yr. The Wells & Coppersmith displacement is the surface slip in one
     event, so recurrence uses the net dip-slip rate.
     """

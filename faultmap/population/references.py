@@ -49,8 +49,8 @@ class ReferenceRange:
     note: str
 
 
-#: Published D-L references (see docs/methods/scaling.md and
-#: shared/methods.md for their confidence). Published ratios are of maximum
+#: Published D-L references (see docs/methods/scaling.md, "Sources and
+#: check values", for their confidence). Published ratios are of maximum
 #: *displacement* (dip slip); a throw-based ratio is smaller by sin(dip).
 REFERENCE_RANGES: tuple[ReferenceRange, ...] = (
     ReferenceRange(

@@ -33,7 +33,7 @@ __all__ = [
 
 SECONDS_PER_MYR = 1e6 * 365.25 * 86400.0
 
-#: Default parameters (McKenzie 1978, EPSL 40; see shared/methods.md).
+#: Default parameters (McKenzie 1978, EPSL 40, verified; see docs/methods/width.md).
 LITHOSPHERE_M = 125e3
 BASE_TEMPERATURE_C = 1333.0
 EXPANSION_PER_C = 3.28e-5

