@@ -196,7 +196,7 @@ def narrow(folder: Path, small: bool):
     check_hazard(label, layers, act[["name", "length_m", "max_throw_m", "surface_age_ka"]], list(act.geometry))
 
     label = f"Skervolin Trough {px:g} m, taper 0.5 L"
-    scene = narrow_rift_scene(folder / "ostrel_taper", pixel_size_m=px, hw_extent_factor=0.5)
+    scene = narrow_rift_scene(folder / "skervolin_taper", pixel_size_m=px, hw_extent_factor=0.5)
     layers, dt = run(scene, ["hazard"])
     row(label, "size / run time", f"{scene.shape[0]} x {scene.shape[1]} px, {dt:.1f} s", "(info)", None)
     check_throw(label, scene, layers)
@@ -227,7 +227,7 @@ def population(folder: Path, small: bool):
     # the same population with peaked (triangular) along-strike profiles
     kw = {} if small else dict(pixel_size_m=35.0, n_faults=40, half_extent_m=15_000.0,
                                length_range_m=(2000.0, 16_000.0), seed=4_409)
-    scene = scaling_scene(folder / "quenby_peaked", profile_shape="triangular", **kw)
+    scene = scaling_scene(folder / "plessovar_peaked", profile_shape="triangular", **kw)
     label = f"Plessovar, triangular {scene.pixel_size_m:g} m"
     layers, dt = run(scene, ["throw"])
     row(label, "size / run time", f"{scene.shape[0]} x {scene.shape[1]} px, {dt:.1f} s", "(info)", None)

@@ -249,11 +249,11 @@ def write_scene(folder, *, name: str, faults: gpd.GeoDataFrame, grid: dict, buil
 # ---------------------------------------------------------------------------
 # Scene 1: the Skervolin Trough (narrow rift, transects, active faults)
 # ---------------------------------------------------------------------------
-_OSTREL_CENTRE = (520_000.0, 2_990_000.0)  # EPSG:32633, about 27 N 15.2 E: no rift there
-_OSTREL_AXIS = 35.0
+_SKERVOLIN_CENTRE = (520_000.0, 2_990_000.0)  # EPSG:32633, about 27 N 15.2 E: no rift there
+_SKERVOLIN_AXIS = 35.0
 # name, u0, u1 (km along the axis), v (km across), polarity (+1 dips to +v), dip, throw (m),
 # shape, plateau_frac, bow (km), active, surface age (ka)
-_OSTREL = (
+_SKERVOLIN = (
     ("West Scarp Fault", -11.0, 11.0, -17.0, +1, 55.0, 640.0, "plateau", 0.4, -0.5, False, np.nan),
     ("East Scarp Fault", -10.0, 10.5, 17.0, -1, 60.0, 520.0, "plateau", 0.3, 0.4, False, np.nan),
     ("Abrunel Fault", -9.5, 1.5, -11.0, +1, 62.0, 260.0, "elliptical", 0.0, 0.2, False, np.nan),
@@ -265,7 +265,7 @@ _OSTREL = (
     ("Gastivvor Fault", 6.5, 11.0, 11.5, -1, 60.0, 120.0, "elliptical", 0.0, 0.0, False, np.nan),
     ("Hurrolet Fault", -11.0, -6.0, 11.5, -1, 61.0, 130.0, "elliptical", 0.0, 0.0, False, np.nan),
 )
-_OSTREL_TRANSECTS = (  # name, u at v = 0 (km), azimuth offset from the across-axis direction (deg)
+_SKERVOLIN_TRANSECTS = (  # name, u at v = 0 (km), azimuth offset from the across-axis direction (deg)
     ("Section North", 4.0, 0.0),
     ("Section South", -5.0, 0.0),
     ("Section Oblique", -1.0, 15.0),
@@ -318,22 +318,22 @@ def narrow_rift_scene(folder, *, pixel_size_m: float = 100.0, hw_extent_factor: 
     """
     crs = CRS.from_epsg(32633)
     px = float(pixel_size_m)
-    faults = _axis_faults(_OSTREL, centre_xy=_OSTREL_CENTRE, axis_azimuth_deg=_OSTREL_AXIS, crs=crs,
+    faults = _axis_faults(_SKERVOLIN, centre_xy=_SKERVOLIN_CENTRE, axis_azimuth_deg=_SKERVOLIN_AXIS, crs=crs,
                           hw_extent_factor=hw_extent_factor)
     half = 25_000.0
-    c = _OSTREL_CENTRE
+    c = _SKERVOLIN_CENTRE
     grid = grid_spec((c[0] - half, c[1] - half, c[0] + half, c[1] + half), pixel_size_m=px)
     nodata = [Polygon(uv_to_xy(np.array([9.8, 12.2, 12.4, 10.0]) * 1000.0,
                                np.array([10.4, 10.6, 12.6, 12.4]) * 1000.0,
-                               centre_xy=c, axis_azimuth_deg=_OSTREL_AXIS))]
+                               centre_xy=c, axis_azimuth_deg=_SKERVOLIN_AXIS))]
     rows = []
-    across = _OSTREL_AXIS + 90.0
-    for k, (name, u, off) in enumerate(_OSTREL_TRANSECTS):
+    across = _SKERVOLIN_AXIS + 90.0
+    for k, (name, u, off) in enumerate(_SKERVOLIN_TRANSECTS):
         az = across + off
         d = unit_vector(az)
         # transect through (u, 0) long enough to reach v = +-20.5 km
         half_len = 20_500.0 / math.cos(math.radians(off))
-        p = uv_to_xy(u * 1000.0, 0.0, centre_xy=c, axis_azimuth_deg=_OSTREL_AXIS)
+        p = uv_to_xy(u * 1000.0, 0.0, centre_xy=c, axis_azimuth_deg=_SKERVOLIN_AXIS)
         rows.append({"transect_id": k + 1, "name": name,
                      "geometry": LineString([p - half_len * d, p + half_len * d])})
     transects = gpd.GeoDataFrame(rows, geometry="geometry", crs=crs)
@@ -341,17 +341,17 @@ def narrow_rift_scene(folder, *, pixel_size_m: float = 100.0, hw_extent_factor: 
                  relief_m=3.0, relief_wavelength_m=max(5000.0, 40.0 * px),
                  scarp_width_m=max(200.0, 4.0 * px), seed=7_350_211, hanging_wall_smoothing=0.3)
     return write_scene(folder, name="Skervolin Trough", faults=faults, grid=grid, build=build, nodata=nodata,
-                       axis_azimuth_deg=_OSTREL_AXIS, crs=crs, transects=transects, reversed_ids=(2, 6, 9))
+                       axis_azimuth_deg=_SKERVOLIN_AXIS, crs=crs, transects=transects, reversed_ids=(2, 6, 9))
 
 
 # ---------------------------------------------------------------------------
 # Scene 2: the Plessovar Fault Field (D = gamma L, n = 1)
 # ---------------------------------------------------------------------------
-_QUENBY_CRS = ("+proj=tmerc +lat_0=-5 +lon_0=-61.5 +k=1 +x_0=200000 +y_0=300000 "
+_PLESSOVAR_CRS = ("+proj=tmerc +lat_0=-5 +lon_0=-61.5 +k=1 +x_0=200000 +y_0=300000 "
                "+ellps=GRS80 +units=m +no_defs")
-_QUENBY_CENTRE = (200_000.0, 300_000.0)
-_QUENBY_AXIS = 140.0
-QUENBY_GAMMA = 0.025
+_PLESSOVAR_CENTRE = (200_000.0, 300_000.0)
+_PLESSOVAR_AXIS = 140.0
+PLESSOVAR_GAMMA = 0.025
 
 
 def scaling_scene(folder, *, pixel_size_m: float = 70.0, n_faults: int = 22,
@@ -379,24 +379,24 @@ def scaling_scene(folder, *, pixel_size_m: float = 70.0, n_faults: int = 22,
     Returns
     -------
     Scene
-        ``gamma`` = :data:`QUENBY_GAMMA` (max throw / length, no scatter),
+        ``gamma`` = :data:`PLESSOVAR_GAMMA` (max throw / length, no scatter),
         strikes within ~6 deg of the 140 deg axis, both dip directions, dips
         50-70 deg, elliptical profiles; faults 3, 8 and 13 digitised against
         the right-hand rule, faults 5, 11 and 17 without a dip direction; a
         nodata patch in one corner.
     """
-    crs = CRS.from_user_input(_QUENBY_CRS)
+    crs = CRS.from_user_input(_PLESSOVAR_CRS)
     px = float(pixel_size_m)
     h = float(half_extent_m)
-    pop = fault_population(n_faults, gamma=QUENBY_GAMMA, exponent=1.0, length_range_m=length_range_m,
+    pop = fault_population(n_faults, gamma=PLESSOVAR_GAMMA, exponent=1.0, length_range_m=length_range_m,
                            extent=(-h, -h, h, h), strike_deg=0.0, strike_scatter_deg=4.0,
                            dip_deg=(50.0, 70.0), min_spacing_m=max(1200.0, 15 * px), edge_margin_m=500.0,
                            profile_shape=profile_shape, seed=seed)
     pop = pop.drop(columns=["length_m"])
     pop["hw_extent_m"] = np.maximum(hw_extent_factor * pop.geometry.length, 1500.0)
-    faults = _rotate_population(pop, centre_xy=_QUENBY_CENTRE, axis_azimuth_deg=_QUENBY_AXIS, crs=crs)
+    faults = _rotate_population(pop, centre_xy=_PLESSOVAR_CENTRE, axis_azimuth_deg=_PLESSOVAR_AXIS, crs=crs)
     reach = h * math.sqrt(2.0) + 1500.0
-    c = _QUENBY_CENTRE
+    c = _PLESSOVAR_CENTRE
     grid = grid_spec((c[0] - reach, c[1] - reach, c[0] + reach, c[1] + reach), pixel_size_m=px)
     # nodata patch in the (empty) west corner of the map square
     nodata = [shapely.Point(c[0] - reach + 2500.0, c[1]).buffer(1800.0)]
@@ -407,15 +407,15 @@ def scaling_scene(folder, *, pixel_size_m: float = 70.0, n_faults: int = 22,
     rev = [i for i in (3, 8, 13) if i <= n]
     nodir = [i for i in (5, 11, 17) if i <= n]
     return write_scene(folder, name="Plessovar Fault Field", faults=faults, grid=grid, build=build, nodata=nodata,
-                       axis_azimuth_deg=_QUENBY_AXIS, crs=crs, reversed_ids=rev, no_dip_dir_ids=nodir,
-                       gamma=QUENBY_GAMMA)
+                       axis_azimuth_deg=_PLESSOVAR_AXIS, crs=crs, reversed_ids=rev, no_dip_dir_ids=nodir,
+                       gamma=PLESSOVAR_GAMMA)
 
 
 # ---------------------------------------------------------------------------
 # Scene 3: the Sundravelk Rift Province (wide rift)
 # ---------------------------------------------------------------------------
-_MARROW_CENTRE = (450_000.0, 3_650_000.0)  # EPSG:32614, about 33 N 99.5 W: no rift there
-_MARROW_AXIS = 75.0
+_SUNDRAVELK_CENTRE = (450_000.0, 3_650_000.0)  # EPSG:32614, about 33 N 99.5 W: no rift there
+_SUNDRAVELK_AXIS = 75.0
 
 
 def wide_rift_scene(folder, *, pixel_size_m: float = 800.0, n_faults: int = 34,
@@ -450,7 +450,7 @@ def wide_rift_scene(folder, *, pixel_size_m: float = 800.0, n_faults: int = 34,
                            dip_deg=(50.0, 65.0), min_spacing_m=10_000.0, profile_shape="elliptical", seed=seed)
     pop = pop.drop(columns=["length_m"])
     pop["hw_extent_m"] = np.maximum(hw_extent_factor * pop.geometry.length, 8000.0)
-    faults = _rotate_population(pop, centre_xy=_MARROW_CENTRE, axis_azimuth_deg=_MARROW_AXIS, crs=crs)
+    faults = _rotate_population(pop, centre_xy=_SUNDRAVELK_CENTRE, axis_azimuth_deg=_SUNDRAVELK_AXIS, crs=crs)
     allxy = np.vstack([np.asarray(g.coords) for g in faults.geometry])
     margin = 25_000.0
     xmin, ymin = allxy.min(axis=0) - margin
@@ -462,7 +462,7 @@ def wide_rift_scene(folder, *, pixel_size_m: float = 800.0, n_faults: int = 34,
                  relief_m=15.0, relief_wavelength_m=max(40_000.0, 40.0 * px),
                  scarp_width_m=max(3200.0, 4.0 * px), seed=seed + 3, hanging_wall_smoothing=0.25)
     return write_scene(folder, name="Sundravelk Rift Province", faults=faults, grid=grid, build=build,
-                       nodata=nodata, axis_azimuth_deg=_MARROW_AXIS, crs=crs, reversed_ids=(4, 9, 21))
+                       nodata=nodata, axis_azimuth_deg=_SUNDRAVELK_AXIS, crs=crs, reversed_ids=(4, 9, 21))
 
 
 # ---------------------------------------------------------------------------

@@ -110,7 +110,7 @@ def population(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def peaked(tmp_path_factory):
-    scene = scaling_scene(tmp_path_factory.mktemp("quenby_peaked"), profile_shape="triangular")
+    scene = scaling_scene(tmp_path_factory.mktemp("plessovar_peaked"), profile_shape="triangular")
     return scene, _run(scene, ["throw"])
 
 
