@@ -65,7 +65,7 @@ def _start_tracing() -> None:
 
 def _warm_up() -> None:
     """Import what the tasks use, so the first timed batch does not pay for it."""
-    import faultmap.extension.kostrov_pieces  # noqa: F401
+    import faultmap.extension.kostrov_tiles  # noqa: F401
     import faultmap.throw.step  # noqa: F401
 
 
@@ -106,7 +106,7 @@ def _reference_task(seed: int) -> float:
 
 def _strain(res, cell_m, engine):
     from faultmap.engine import engine_map
-    from faultmap.extension.kostrov_pieces import gather_kostrov_tiles, kostrov_tile, plan_kostrov_tiles
+    from faultmap.extension.kostrov_tiles import gather_kostrov_tiles, kostrov_tile, plan_kostrov_tiles
 
     tiles, grid = plan_kostrov_tiles(res.faults, res.stations, cell_size_m=cell_m, tile_cells=64)
     cells, whole = gather_kostrov_tiles(engine_map(engine, kostrov_tile, tiles), grid)

@@ -36,7 +36,7 @@ def extension_map_figure(
     ----------
     cells : geopandas.GeoDataFrame
         Strain cells or polygons with ``e1`` and ``e1_azimuth_deg`` (from
-        :func:`faultmap.extension.kostrov.kostrov_grid` or ``kostrov_polygons``).
+        :func:`faultmap.extension.kostrov_sums.kostrov_grid` or ``kostrov_polygons``).
     faults : geopandas.GeoDataFrame, optional
         Fault traces drawn as thin lines.
     hillshade : numpy.ndarray, optional
@@ -135,7 +135,7 @@ def transect_extension_figure(transects: gpd.GeoDataFrame, *, title: str | None 
     Parameters
     ----------
     transects : geopandas.GeoDataFrame or pandas.DataFrame
-        Output of :func:`faultmap.extension.transects.measure_transects` (``extension``,
+        Output of :func:`faultmap.extension.transect_measure.measure_transects` (``extension``,
         ``extension_p16``, ``extension_p84``; optional
         ``extension_corrected``, ``ends_inside``, ``position_m``).
     title : str, optional

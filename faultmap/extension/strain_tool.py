@@ -1,10 +1,10 @@
 """Tool ``strain``: horizontal strain tensors by Kostrov summation.
 
-Thin wrapper around the tiled form of :func:`faultmap.extension.kostrov.kostrov_grid`
-(:func:`~faultmap.extension.kostrov.plan_kostrov_tiles` splits the grid into tiles of
+Thin wrapper around the tiled form of :func:`faultmap.extension.kostrov_sums.kostrov_grid`
+(:func:`~faultmap.extension.kostrov_tiles.plan_kostrov_tiles` splits the grid into tiles of
 :data:`TILE_CELLS` x :data:`TILE_CELLS` cells, the run's engine sums each tile,
-:func:`~faultmap.extension.kostrov.gather_kostrov_tiles` assembles them: the same cells
-whatever runs them) and :func:`faultmap.extension.kostrov.kostrov_polygons` for the
+:func:`~faultmap.extension.kostrov_tiles.gather_kostrov_tiles` assembles them: the same cells
+whatever runs them) and :func:`faultmap.extension.kostrov_sums.kostrov_polygons` for the
 study-area polygons, when given: adds the ``strain_cells`` layer (and
 ``strain_areas``), the whole-area tensor to ``run_info``, and a map of
 extension directions.
@@ -16,12 +16,8 @@ import numpy as np
 import shapely
 
 from faultmap.errors import InputError
-from faultmap.extension.kostrov_pieces import (
-    gather_kostrov_tiles,
-    kostrov_polygons,
-    kostrov_tile,
-    plan_kostrov_tiles,
-)
+from faultmap.extension.kostrov_sums import kostrov_polygons
+from faultmap.extension.kostrov_tiles import gather_kostrov_tiles, kostrov_tile, plan_kostrov_tiles
 from faultmap.registry import Param, Tool
 
 FIGURE = "strain_map.png"

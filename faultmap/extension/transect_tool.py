@@ -1,10 +1,10 @@
 """Tool ``transect``: heave summation along transects, extension and beta.
 
-Thin wrapper around :func:`faultmap.extension.transects.measure_transects`, run in
+Thin wrapper around :func:`faultmap.extension.transect_measure.measure_transects`, run in
 batches of :data:`TRANSECTS_PER_BATCH` transects through the run's engine
-(:func:`~faultmap.extension.transects.plan_transect_batches`,
-:func:`~faultmap.extension.transects.measure_transect_batch`,
-:func:`~faultmap.extension.transects.gather_transect_batches`: the same result whatever
+(:func:`~faultmap.extension.transect_batches.plan_transect_batches`,
+:func:`~faultmap.extension.transect_batches.measure_transect_batch`,
+:func:`~faultmap.extension.transect_batches.gather_transect_batches`: the same result whatever
 runs them): takes the user's transects (already in the working CRS) or
 builds them perpendicular to the mean strike, adds the ``transects`` and
 ``transect_crossings`` layers, one figure and the run-summary records.
@@ -16,14 +16,13 @@ import numpy as np
 
 from faultmap.errors import InputError
 from faultmap.extension.subresolution import detection_throw_m
-from faultmap.extension.transect_measure import (
-    ZONE_CHOICES,
-    auto_transects,
+from faultmap.extension.transect_batches import (
     gather_transect_batches,
-    mean_strike_deg,
     measure_transect_batch,
     plan_transect_batches,
 )
+from faultmap.extension.transect_layout import auto_transects, mean_strike_deg
+from faultmap.extension.transect_measure import ZONE_CHOICES
 from faultmap.registry import Param, Tool
 
 FIGURE = "transect_extension.png"

@@ -19,14 +19,9 @@ from matplotlib.figure import Figure  # noqa: E402
 
 from faultmap.errors import CRSError, FaultmapWarning, ParameterError  # noqa: E402
 from faultmap.extension.figures import extension_map_figure, transect_extension_figure  # noqa: E402
-from faultmap.extension.kostrov_pieces import (  # noqa: E402
-    fault_moment_sum,
-    fault_pieces,
-    kostrov_grid,
-    kostrov_polygons,
-    principal_strains,
-    whole_area_strain,
-)
+from faultmap.extension.kostrov_pieces import fault_pieces  # noqa: E402
+from faultmap.extension.kostrov_sums import kostrov_grid, kostrov_polygons  # noqa: E402
+from faultmap.extension.strain_tensors import fault_moment_sum, principal_strains, whole_area_strain  # noqa: E402
 from faultmap.extension.transect_measure import measure_transects  # noqa: E402
 
 CRS = "EPSG:32636"

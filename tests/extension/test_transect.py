@@ -15,7 +15,9 @@ import shapely
 
 from faultmap.errors import CRSError, FaultmapWarning, InputError, ParameterError
 from faultmap.extension.subresolution import corrected_sum, detection_throw_m, fraction_below_detection
-from faultmap.extension.transect_measure import auto_transects, mean_strike_deg, measure_transects, throw_at
+from faultmap.extension.throw_profiles import throw_at
+from faultmap.extension.transect_layout import auto_transects, mean_strike_deg
+from faultmap.extension.transect_measure import measure_transects
 
 CRS = "EPSG:32636"
 

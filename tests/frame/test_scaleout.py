@@ -144,12 +144,8 @@ def test_project_engine_table_and_cli_scheduler(skervolin, cluster, monkeypatch,
 
 
 def test_strain_tiles_match_the_whole_grid_for_any_tile_size(skervolin):
-    from faultmap.extension.kostrov_pieces import (
-        gather_kostrov_tiles,
-        kostrov_grid,
-        kostrov_tile,
-        plan_kostrov_tiles,
-    )
+    from faultmap.extension.kostrov_sums import kostrov_grid
+    from faultmap.extension.kostrov_tiles import gather_kostrov_tiles, kostrov_tile, plan_kostrov_tiles
 
     _, ref = skervolin
     faults = gpd.GeoDataFrame(ref["faults"], geometry="geometry")
@@ -171,12 +167,12 @@ def test_strain_tiles_match_the_whole_grid_for_any_tile_size(skervolin):
 
 
 def test_transect_batches_are_independent_of_batch_size(skervolin):
-    from faultmap.extension.transect_measure import (
+    from faultmap.extension.transect_batches import (
         gather_transect_batches,
         measure_transect_batch,
-        measure_transects,
         plan_transect_batches,
     )
+    from faultmap.extension.transect_measure import measure_transects
 
     scene, ref = skervolin
     faults = gpd.GeoDataFrame(ref["faults"], geometry="geometry")
@@ -355,12 +351,12 @@ def test_transect_warnings_merged_across_batches_match_one_call(skervolin):
     import warnings
 
     from faultmap.errors import FaultmapWarning
-    from faultmap.extension.transect_measure import (
+    from faultmap.extension.transect_batches import (
         gather_transect_batches,
         measure_transect_batch,
-        measure_transects,
         plan_transect_batches,
     )
+    from faultmap.extension.transect_measure import measure_transects
 
     scene, ref = skervolin
     faults = gpd.GeoDataFrame(ref["faults"], geometry="geometry")

@@ -221,7 +221,7 @@ def test_one_axial_mean_everywhere():
     # Doubled-angle axial mean (Mardia & Jupp 2000): every analysis that averages strikes uses the same
     # implementation and agrees on a known case: two equal axes at 10 and 50 deg average to 30 deg;
     # a north-south set gives 0, never 180 (the range is [0, 180)).
-    from faultmap.extension.transect_measure import mean_strike_deg
+    from faultmap.extension.transect_layout import mean_strike_deg
     from faultmap.numerics.directions import axial_mean_deg as base
     from faultmap.rift import axial_mean_deg as width_mean
 
