@@ -5,7 +5,7 @@ surface, ``faultmap.synthetic.builder``) as a tiled GeoTIFF in a temporary folde
 
 1. the throw step (``faultmap.throw.step.measure_throw``) with ``memory_budget_mb`` below the DEM's size,
    so that it runs as many spatial batches, each reading its own DEM windows;
-2. the strain step (Kostrov sums on a fine grid, in tiles of cells: ``faultmap.extension.kostrov``),
+2. the strain step (Kostrov sums on a fine grid, in tiles of cells: ``faultmap.extension.kostrov_tiles``),
 
 in-process and on local Dask clusters of 1 and 2 worker processes (``faultmap.engine``), checks that
 every engine returns the same stations, faults and cells (bit for bit: the same batch plan), and

@@ -280,7 +280,7 @@ def test_run_without_measurable_station_completes(tmp_path):
 
     Data contract (DEVELOPERS.md): statuses say why a station has no throw;
     a run must not fail because none could be measured. Regression test:
-    faultmap.throw.step._station_lookup once raised ValueError on an empty set.
+    faultmap.throw.linkage._station_lookup once raised ValueError on an empty set.
     """
     scene = close_faults_scene(tmp_path, isolated=False)
     layers = _run(scene, ["throw"])

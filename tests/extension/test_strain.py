@@ -1,4 +1,4 @@
-"""Tests of faultmap.extension.kostrov (Kostrov summation) and the extension figures.
+"""Tests of the Kostrov modules of faultmap.extension (pieces, sums, tiles, tensors) and the extension figures.
 
 Synthetic scenes are built here; every numeric check names its source.
 """

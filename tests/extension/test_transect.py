@@ -1,4 +1,4 @@
-"""Tests of faultmap.extension.transects and faultmap.extension.subresolution.
+"""Tests of the transect modules of faultmap.extension (layout, geometry, measure, batches) and faultmap.extension.subresolution.
 
 Synthetic scenes are built here from straight (or arc) LineStrings with
 analytic throw profiles; every numeric check names its source.

@@ -3,7 +3,7 @@ than the memory budget, and failing workers.
 
 Scenes are synthetic and built by code (the Skervolin Trough of ``tests/scenes.py`` and straight faults
 offsetting a planar surface, written here). References: the unpartitioned functions
-(:func:`faultmap.extension.kostrov.kostrov_grid`, :func:`faultmap.extension.transects.measure_transects`, themselves checked
+(:func:`faultmap.extension.kostrov_sums.kostrov_grid`, :func:`faultmap.extension.transect_measure.measure_transects`, themselves checked
 against Kostrov 1974 and the heave-summation definitions in test_strain.py / test_transect.py), and for
 the large DEM the throws it was built with (a vertical step of T on a planar surface has throw T).
 """

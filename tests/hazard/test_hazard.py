@@ -22,8 +22,8 @@ import shapely
 matplotlib.use("Agg")
 
 from faultmap.errors import InputError, ParameterError  # noqa: E402
-from faultmap.hazard.scenarios import rupture_scenarios
 from faultmap.hazard.caution import CAUTION
+from faultmap.hazard.scenarios import rupture_scenarios
 from faultmap.hazard.screening import screen_hazard
 from faultmap.hazard.slip_rates import slip_rate_draws, slip_rates
 from faultmap.hazard.zones import mapping_uncertainty_from_scale, rupture_zones
