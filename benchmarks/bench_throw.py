@@ -63,7 +63,7 @@ def build_scene(folder: Path, n_pixels: int, n_faults: int, seed: int = 3):
     """Synthetic rift: a fault population (D = gamma L) displacing a gently rough surface."""
     import rasterio
 
-    from faultmap.synthetic.builder import build_dem, fault_population
+    from faultmap.synthetic import build_dem, fault_population
 
     ext = (0.0, 0.0, n_pixels * PIXEL_M, n_pixels * PIXEL_M)
     t0 = time.perf_counter()

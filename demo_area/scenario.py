@@ -40,7 +40,7 @@ import shapely
 from shapely.geometry import LineString, MultiLineString, Polygon
 
 from faultmap.errors import OutputError, ParameterError
-from faultmap.synthetic.builder import SceneTruth, build_dem
+from faultmap.synthetic import SceneTruth, build_dem
 
 __all__ = [
     "SCENARIO_NAME",

@@ -45,7 +45,7 @@ import shapely
 from pyproj import CRS
 from shapely.geometry import LineString, Polygon
 
-from faultmap.synthetic.builder import SceneTruth, build_dem, fault_population, grid_spec
+from faultmap.synthetic import SceneTruth, build_dem, fault_population, grid_spec
 
 __all__ = [
     "Scene",
@@ -572,7 +572,7 @@ def close_faults_scene(folder, *, pixel_size_m: float = 50.0, spacing_m: float =
     -------
     Scene
     """
-    from faultmap.synthetic.builder import parallel_faults
+    from faultmap.synthetic import parallel_faults
 
     crs = CRS.from_epsg(32631)
     px = float(pixel_size_m)

@@ -21,7 +21,7 @@ Azimuths are degrees clockwise from grid north; the unit vector of azimuth
 ``az`` is ``(sin az, cos az)`` in (east, north).
 
 The work is split by what it computes; this module builds the DEM
-(:func:`build_dem`) and re-exports every public name:
+(:func:`build_dem`); the parts (public names listed in :mod:`faultmap.synthetic`) are:
 
 * :mod:`faultmap.synthetic.profile_shapes`: along-strike throw profiles;
 * :mod:`faultmap.synthetic.grid`: grid origin, shape and pixel centres;
@@ -45,21 +45,10 @@ from shapely.geometry.base import BaseGeometry
 
 from faultmap.errors import ParameterError
 from faultmap.synthetic.faults import _displacement, _fault_window, _prepare_faults, _smoothing_table
-from faultmap.synthetic.grid import _positive, grid_spec, pixel_centres
-from faultmap.synthetic.populations import fault_population, parallel_faults
-from faultmap.synthetic.profile_shapes import PROFILE_SHAPES, throw_profile
+from faultmap.synthetic.grid import _positive, pixel_centres
 from faultmap.synthetic.truth import SceneTruth, _truth_table
 
-__all__ = [
-    "PROFILE_SHAPES",
-    "SceneTruth",
-    "throw_profile",
-    "build_dem",
-    "grid_spec",
-    "pixel_centres",
-    "parallel_faults",
-    "fault_population",
-]
+__all__ = ["build_dem"]
 
 
 # ---------------------------------------------------------------------------

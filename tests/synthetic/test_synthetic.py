@@ -17,14 +17,10 @@ import shapely
 from shapely.geometry import LineString, MultiLineString, Polygon
 
 from faultmap.errors import FaultmapError, GeometryError, InputError, ParameterError
-from faultmap.synthetic.builder import (
-    build_dem,
-    fault_population,
-    grid_spec,
-    parallel_faults,
-    pixel_centres,
-    throw_profile,
-)
+from faultmap.synthetic.builder import build_dem
+from faultmap.synthetic.grid import grid_spec, pixel_centres
+from faultmap.synthetic.populations import fault_population, parallel_faults
+from faultmap.synthetic.profile_shapes import throw_profile
 
 
 # ---------------------------------------------------------------------------

@@ -308,7 +308,7 @@ def test_caskey_values_recovered_from_dem(tmp_path):
 # ---------------------------------------------------------------------------
 @pytest.fixture(scope="module")
 def synthetic_scene(tmp_path_factory):
-    from faultmap.synthetic.builder import build_dem, parallel_faults
+    from faultmap.synthetic import build_dem, parallel_faults
 
     tmp = tmp_path_factory.mktemp("synth")
     f = parallel_faults(
@@ -437,7 +437,7 @@ def test_batches_independent_of_memory_budget(synthetic_scene):
 def test_close_parallel_faults_do_not_contaminate(tmp_path):
     # source: the known slips (faultmap.synthetic.builder); two faults 160 m apart, throws 25 and 6 m:
     # each profile stops at the neighbour's trace, so each fault keeps its own throw
-    from faultmap.synthetic.builder import build_dem, parallel_faults
+    from faultmap.synthetic import build_dem, parallel_faults
 
     f = parallel_faults(
         2,
@@ -594,7 +594,7 @@ def test_linkage_zone_between_collinear_segments(tmp_path):
     # construction: two collinear segments of one system with a 200 m gap; each elliptical
     # profile tapers to zero at its tips, so their summed throw has a minimum in the gap
     # (relay/linkage zone; Peacock & Sanderson 1991, from memory)
-    from faultmap.synthetic.builder import build_dem
+    from faultmap.synthetic import build_dem
 
     rows = [
         {
@@ -673,7 +673,7 @@ def test_throw_tool_end_to_end(tmp_path):
     # source: the known slips of a synthetic scene (faultmap.synthetic.builder); traces digitised in
     # mixed directions and without dip directions go through prepare and throw into a GeoPackage
     from faultmap.runner import run_tools
-    from faultmap.synthetic.builder import build_dem, parallel_faults
+    from faultmap.synthetic import build_dem, parallel_faults
 
     f = parallel_faults(
         2,
@@ -741,7 +741,7 @@ def test_first_run_compile_is_announced(tmp_path, monkeypatch):
     # instead of sitting silent; once compiled, numba's on-disk cache holds them (common practice)
     from faultmap.numerics import jit
     from faultmap.runner import run_tools
-    from faultmap.synthetic.builder import build_dem, parallel_faults
+    from faultmap.synthetic import build_dem, parallel_faults
     from faultmap.throw import step
 
     f = parallel_faults(1, spacing_m=900.0, length_m=[1600.0], throw_m=[10.0], dip_dir_deg=90.0,
