@@ -16,8 +16,6 @@ import numpy as np
 import shapely
 
 from faultmap.errors import InputError
-from faultmap.extension.kostrov_sums import kostrov_polygons
-from faultmap.extension.kostrov_tiles import gather_kostrov_tiles, kostrov_tile, plan_kostrov_tiles
 from faultmap.registry import Param, Tool
 
 FIGURE = "strain_map.png"
@@ -37,6 +35,9 @@ def _nice_cell(size: float) -> float:
 
 def run(ctx, p: dict) -> None:
     """Kostrov strain on a grid (and in study-area polygons)."""
+    from faultmap.extension.kostrov_sums import kostrov_polygons
+    from faultmap.extension.kostrov_tiles import gather_kostrov_tiles, kostrov_tile, plan_kostrov_tiles
+
     faults = ctx.faults
     if faults is None or len(faults) == 0:
         raise InputError("strain needs the faults layer: run prepare and throw first.")

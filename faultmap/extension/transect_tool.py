@@ -15,14 +15,6 @@ from __future__ import annotations
 import numpy as np
 
 from faultmap.errors import InputError
-from faultmap.extension.subresolution import detection_throw_m
-from faultmap.extension.transect_batches import (
-    gather_transect_batches,
-    measure_transect_batch,
-    plan_transect_batches,
-)
-from faultmap.extension.transect_layout import auto_transects, mean_strike_deg
-from faultmap.extension.transect_measure import ZONE_CHOICES
 from faultmap.registry import Param, Tool
 
 FIGURE = "transect_extension.png"
@@ -78,6 +70,14 @@ def scaling_line_exponent(result) -> tuple[float | None, str]:
 
 def run(ctx, p: dict) -> None:
     """Measure extension along the user's or automatic transects."""
+    from faultmap.extension.subresolution import detection_throw_m
+    from faultmap.extension.transect_batches import (
+        gather_transect_batches,
+        measure_transect_batch,
+        plan_transect_batches,
+    )
+    from faultmap.extension.transect_layout import auto_transects, mean_strike_deg
+
     faults = ctx.faults
     if faults is None or len(faults) == 0:
         raise InputError("transect needs the faults layer: run prepare and throw first.")
@@ -211,7 +211,7 @@ TOOL = Tool(
               unit="m", min=0.0, nullable=True),
         Param("zone", str, "faulted",
               "Present length L1: 'faulted' = between the outermost crossings plus margin_m each side; "
-              "'full' = the whole transect.", choices=ZONE_CHOICES),
+              "'full' = the whole transect.", choices=("faulted", "full")),
         Param("margin_m", float, None,
               "Margin added beyond the outermost crossings (zone 'faulted'); default: half the median "
               "distance between neighbouring crossings.", unit="m", min=0.0, nullable=True),

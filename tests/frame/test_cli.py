@@ -183,3 +183,32 @@ def test_quiet_and_verbose_after_the_tool_name(cli, scene):
     assert res.exit_code == 0 and "wrote" not in res.stderr and out.exists()
     res = cli(["prepare", "--faults", scene["dir"] / "nope.gpkg", "--out", scene["dir"] / "n.gpkg", "-v"])
     assert res.exit_code == 2 and "Traceback" in res.stderr
+
+
+def test_listing_tools_imports_no_analysis_dependency():
+    # Start-up stays fast (issue: `faultmap --help` answered in 2.4-3.5 s): reading every tool's declaration
+    # and building the command line must not import the heavy libraries, which load when a tool runs.
+    # A fresh interpreter, so that modules other tests imported do not count.
+    import subprocess
+    import sys
+
+    code = (
+        "import sys, faultmap.cli as c\n"
+        "c.build_cli()\n"
+        "from faultmap.registry import load_tools\n"
+        "assert len(load_tools()) == 7\n"
+        "print(','.join(m for m in ('geopandas', 'numba', 'matplotlib', 'scipy', 'pandas', 'rasterio', 'pyogrio')"
+        " if m in sys.modules))\n"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.strip()
+    assert out == ""
+
+
+def test_declared_choices_match_the_analysis():
+    # The transect tool's declaration spells the zone choices out (so that listing tools stays light);
+    # they must be the ones the analysis accepts.
+    from faultmap.extension.transect_measure import ZONE_CHOICES
+    from faultmap.extension.transect_tool import TOOL
+
+    (zone,) = [p for p in TOOL.params if p.name == "zone"]
+    assert tuple(zone.choices) == ZONE_CHOICES
