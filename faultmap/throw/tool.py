@@ -136,7 +136,8 @@ def _relink(ctx, res, params) -> None:
     (and linkage zones recomputed) with the same link parameters.
     """
     from faultmap.throw.linkage import linkage_zones
-    from faultmap.traces.conditioning import link_systems
+    from faultmap.traces.conditioning import link_systems, system_sizes
+    from faultmap.traces.tool import format_system_sizes
 
     link = ctx.results.get("prepare")
     f = res.faults
@@ -146,8 +147,7 @@ def _relink(ctx, res, params) -> None:
         f.geometry.to_numpy(),
         f["strike_deg"].to_numpy(dtype=float),
         f["dip_dir_deg"].to_numpy(dtype=float),
-        link_distance_m=link["link_distance_m"],
-        link_angle_deg=link["link_angle_deg"],
+        **link,
     )
     old = f["system_id"].to_numpy()
     if np.array_equal(new, old):
@@ -155,6 +155,7 @@ def _relink(ctx, res, params) -> None:
     f["system_id"] = new
     res.linkage_zones = linkage_zones(f, res.stations, step_m=params.station_spacing_m)
     ctx.info("linked systems updated with the dip directions measured from the DEM.")
+    ctx.record("systems_by_size", format_system_sizes(system_sizes(new)))
 
 
 TOOL = Tool(

@@ -15,6 +15,7 @@ _EXPORTS = {
     "orient_traces": "conditioning",
     "censor_flags": "conditioning",
     "link_systems": "conditioning",
+    "system_sizes": "conditioning",
 }
 __all__ = list(_EXPORTS)
 __getattr__, __dir__ = lazy_exports(__name__, globals(), _EXPORTS)

@@ -15,7 +15,7 @@ import shapely
 from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
 
-from faultmap.errors import GeometryError, InputError
+from faultmap.errors import GeometryError, InputError, ParameterError
 from faultmap.numerics.directions import axial_mean_deg, segment_azimuths
 from faultmap.registry import DEFAULT_FIELDS
 
@@ -25,6 +25,7 @@ __all__ = [
     "orient_traces",
     "censor_flags",
     "link_systems",
+    "system_sizes",
 ]
 
 #: Input attribute names (conventions); remappable with ``[fields]``.
@@ -330,56 +331,142 @@ def link_systems(
     *,
     link_distance_m: float,
     link_angle_deg: float,
+    link_length_ratio: float = 0.5,
+    max_segments: int = 5,
 ) -> np.ndarray:
-    """Group traces into linked systems (segments of one fault system).
+    """Group traces into linked systems: pairs and short chains of along-strike segments.
 
-    Two traces are linked when they are along-strike neighbours: a tip of one
-    lies within ``link_distance_m`` of a tip of the other, their extents along
-    the common strike overlap by less than half the shorter trace (so
-    side-by-side parallel faults are not linked, while en-echelon segments
-    with a relay zone are), their strikes differ by less than
-    ``link_angle_deg`` (as axes, modulo 180) and their dip directions agree
-    (differ by less than 90 deg) or one is unknown. Links are transitive.
+    Two traces may link when they are along-strike neighbours: a tip of one
+    lies within ``link_distance_m`` of a tip of the other and within
+    ``link_length_ratio`` times the shorter trace's length (relay zones between
+    segments are small compared with the segments: the criterion scales with
+    the faults, so a dense population of small faults is not chained by a
+    fixed distance); their extents along their mean strike overlap by less
+    than half the shorter trace (side-by-side parallel faults are not
+    segments of one fault, en-echelon segments with a relay zone are); their
+    strikes differ by less than ``link_angle_deg`` (as axes, modulo 180) and
+    their dip directions agree (differ by less than 90 deg) or one is unknown.
+
+    Links are not transitive across the map: each tip links to at most one
+    other trace (its nearest candidate, by tip distance over the shorter
+    length) and only when that trace's tip chooses it back, so systems are
+    chains of segments end to end; a chain of more than ``max_segments``
+    traces is cut at its weakest links (largest relative tip distance) until
+    no system is larger.
+
+    Parameters
+    ----------
+    lines : array of shapely.LineString
+        Traces in a projected metric CRS.
+    strike_deg, dip_dir_deg : array_like of float
+        Right-hand-rule strike and dip direction per trace, degrees (dip
+        direction NaN when unknown).
+    link_distance_m : float
+        Largest tip-to-tip distance of a link, m.
+    link_angle_deg : float
+        Largest strike difference of a link, degrees.
+    link_length_ratio : float
+        Largest tip-to-tip distance as a fraction of the shorter trace's length.
+    max_segments : int
+        Most traces in one system (at least 2).
 
     Returns
     -------
     ndarray of int
         ``system_id`` per trace, 1-based, numbered by the smallest trace
         index in each system (so the numbering is stable).
+
+    Notes
+    -----
+    Relay zones between overlapping or underlapping segments of one fault are
+    of the order of the segment spacing, small against the segments' lengths
+    (Peacock & Sanderson 1991, J. Struct. Geol. 13; Walsh et al. 2003, J.
+    Struct. Geol. 25; from memory). The relative-distance, mutual-partner and
+    size rules are ours (stated here and in ``docs/methods/prepare.md``).
     """
     lines = np.asarray(lines)
     n = len(lines)
     if n == 0:
         return np.zeros(0, dtype=np.int64)
+    if int(max_segments) < 2:
+        raise ParameterError(f"max_segments must be at least 2, got {max_segments}.")
     start = shapely.get_coordinates(shapely.get_point(lines, 0))
     end = shapely.get_coordinates(shapely.get_point(lines, -1))
-    tips = shapely.points(np.concatenate([start, end]))
+    tip_xy = np.concatenate([start, end])
     owner = np.r_[np.arange(n), np.arange(n)]
-    tree = shapely.STRtree(tips)
-    ti, tj = tree.query(tips, predicate="dwithin", distance=link_distance_m)
+    tree = shapely.STRtree(shapely.points(tip_xy))
+    ti, tj = tree.query(shapely.points(tip_xy), predicate="dwithin", distance=link_distance_m)
+    keep = owner[ti] != owner[tj]
+    ti, tj = ti[keep], tj[keep]
     a, b = owner[ti], owner[tj]
-    keep = a < b
-    a, b = a[keep], b[keep]
     s = np.asarray(strike_deg, dtype=float)
     ds = np.abs(((s[a] - s[b]) + 90.0) % 180.0 - 90.0)
     dd = np.asarray(dip_dir_deg, dtype=float)
     ddiff = np.abs(((dd[a] - dd[b]) + 180.0) % 360.0 - 180.0)
     agree = np.isnan(ddiff) | (ddiff < 90.0)
-    # extents along the strike of the first trace of each pair
-    u = np.c_[np.sin(np.radians(s[a])), np.cos(np.radians(s[a]))]
+    # extents along the pair's mean strike (axial mean: the same for (a, b) and (b, a))
+    m = 0.5 * np.arctan2(np.sin(np.radians(2 * s[a])) + np.sin(np.radians(2 * s[b])),
+                         np.cos(np.radians(2 * s[a])) + np.cos(np.radians(2 * s[b])))
+    u = np.c_[np.sin(m), np.cos(m)]
     pa = np.c_[(start[a] * u).sum(1), (end[a] * u).sum(1)]
     pb = np.c_[(start[b] * u).sum(1), (end[b] * u).sum(1)]
     overlap = np.minimum(pa.max(1), pb.max(1)) - np.maximum(pa.min(1), pb.min(1))
-    shorter = np.minimum(np.ptp(pa, axis=1), np.ptp(pb, axis=1))
-    ok = (ds < link_angle_deg) & agree & (overlap < 0.5 * shorter)
-    a, b = a[ok], b[ok]
-    a, b = np.unique(np.c_[a, b], axis=0).T if len(a) else (a, b)
-    graph = coo_matrix((np.ones(len(a)), (a, b)), shape=(n, n))
-    _, labels = connected_components(graph, directed=False)
+    length = shapely.length(lines)
+    shorter = np.minimum(length[a], length[b])
+    gap = np.hypot(*(tip_xy[ti] - tip_xy[tj]).T)
+    ok = (ds < link_angle_deg) & agree & (overlap < 0.5 * shorter) & (gap <= link_length_ratio * shorter)
+    ti, tj, score = ti[ok], tj[ok], gap[ok] / np.maximum(shorter[ok], 1e-12)
+    # each tip's best partner tip; a link needs both tips to choose each other
+    best = np.full(2 * n, -1)
+    if len(ti):
+        # ties between equally near partners are broken by the partner tip's position, not by input order
+        order = np.lexsort((tip_xy[tj, 1], tip_xy[tj, 0], score, ti))
+        first = order[np.r_[True, ti[order][1:] != ti[order][:-1]]]
+        best[ti[first]] = tj[first]
+    t = np.flatnonzero(best >= 0)
+    mutual = t[(best[best[t]] == t) & (t < best[t])]
+    ea, eb = owner[mutual], owner[best[mutual]]
+    escore = np.hypot(*(tip_xy[mutual] - tip_xy[best[mutual]]).T) / np.minimum(length[ea], length[eb])
+    lo, hi = np.minimum(ea, eb), np.maximum(ea, eb)
+    if len(lo):  # two traces joined at both ends: one link
+        _, keep_first = np.unique(np.c_[lo, hi], axis=0, return_index=True)
+        lo, hi, escore = lo[keep_first], hi[keep_first], escore[keep_first]
+        mutual = mutual[keep_first]
+    mid = 0.5 * (tip_xy[mutual] + tip_xy[best[mutual]])  # where each link is: breaks ties by position
+    alive = np.ones(len(lo), dtype=bool)
+    while True:
+        graph = coo_matrix((np.ones(int(alive.sum())), (lo[alive], hi[alive])), shape=(n, n))
+        _, labels = connected_components(graph, directed=False)
+        size = np.bincount(labels)
+        idx = np.flatnonzero(alive & (size[labels[lo]] > max_segments))
+        if not len(idx):
+            break
+        comp = labels[lo[idx]]  # cut the weakest link of every oversized system, then look again
+        order = np.lexsort((mid[idx, 1], mid[idx, 0], -escore[idx], comp))
+        weakest = order[np.r_[True, comp[order][1:] != comp[order][:-1]]]
+        alive[idx[weakest]] = False
     first = np.full(labels.max() + 1, n)
     np.minimum.at(first, labels, np.arange(n))
     rank = np.argsort(np.argsort(first))
     return (rank[labels] + 1).astype(np.int64)
+
+
+def system_sizes(system_id) -> dict[int, int]:
+    """Count linked systems by their number of traces.
+
+    Parameters
+    ----------
+    system_id : array_like of int
+        System of each trace (:func:`link_systems`).
+
+    Returns
+    -------
+    dict of int to int
+        Number of traces in a system -> number of such systems, ascending.
+    """
+    counts = np.bincount(np.asarray(system_id, dtype=np.int64))
+    sizes, n_sys = np.unique(counts[counts > 0], return_counts=True)
+    return {int(k): int(v) for k, v in zip(sizes, n_sys, strict=True)}
 
 
 def _ids(values, limit: int = 10) -> str:

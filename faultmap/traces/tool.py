@@ -11,10 +11,18 @@ import numpy as np
 from faultmap.errors import InputError
 from faultmap.registry import Param, Tool
 
+#: Parameters of the linkage rule (the throw tool re-links with the same ones).
+LINK_PARAMS = ("link_distance_m", "link_angle_deg", "link_length_ratio", "max_segments")
+
+
+def format_system_sizes(sizes: dict[int, int]) -> str:
+    """Write system counts by size as ``"1:180, 2:12, 3:2"`` (traces per system: systems)."""
+    return ", ".join(f"{k}:{v}" for k, v in sizes.items())
+
 
 def run(ctx, p: dict) -> None:
     """Condition ``ctx.raw_faults`` into the ``faults`` layer."""
-    from faultmap.traces.conditioning import censor_flags, condition_traces, link_systems
+    from faultmap.traces.conditioning import censor_flags, condition_traces, link_systems, system_sizes
 
     raw = ctx.raw_faults
     where = raw.attrs.get("source", "faults")
@@ -61,20 +69,19 @@ def run(ctx, p: dict) -> None:
     censored, reason = censor_flags(lines, tolerance_m=tol, dem_bounds=bounds, sampler=sampler, study_area=area)
     faults["censored"] = censored
     faults["censor_reason"] = reason.astype(str)
+    link = {k: p[k] for k in LINK_PARAMS}
     faults["system_id"] = link_systems(
-        lines,
-        faults["strike_deg"].to_numpy(),
-        faults["dip_dir_deg"].to_numpy(),
-        link_distance_m=p["link_distance_m"],
-        link_angle_deg=p["link_angle_deg"],
+        lines, faults["strike_deg"].to_numpy(), faults["dip_dir_deg"].to_numpy(), **link
     )
-    n_sys = int((np.bincount(faults["system_id"]) > 1).sum())
+    sizes = system_sizes(faults["system_id"])
+    n_sys = sum(v for k, v in sizes.items() if k > 1)
     ctx.info(
         f"{len(faults)} traces, {int(censored.sum())} censored, {n_sys} linked systems of several segments."
     )
     ctx.record("n_traces", len(faults))
+    ctx.record("systems_by_size", format_system_sizes(sizes))
     # kept so that throw can re-link systems once it knows every dip direction
-    ctx.results["prepare"] = {"link_distance_m": p["link_distance_m"], "link_angle_deg": p["link_angle_deg"]}
+    ctx.results["prepare"] = link
     ctx.faults = faults
 
 
@@ -99,8 +106,19 @@ TOOL = Tool(
         ),
         Param(
             "link_distance_m", float, 1000.0,
-            "Traces whose tip lies within this distance of another trace are linked into one system.",
+            "Largest tip-to-tip distance of two linked segments (see also link_length_ratio).",
             unit="m", min=0.0,
+        ),
+        Param(
+            "link_length_ratio", float, 0.5,
+            "Largest tip-to-tip distance of two linked segments as a fraction of the shorter one's length "
+            "(relay zones are small against their segments; our rule).",
+            unit="", min=0.0, min_exclusive=True,
+        ),
+        Param(
+            "max_segments", int, 5,
+            "Most traces in one linked system: longer chains are cut at their weakest relays (our rule).",
+            unit="", min=2, max=1000,
         ),
         Param(
             "link_angle_deg", float, 20.0,
@@ -114,7 +132,7 @@ TOOL = Tool(
         "Explodes multi-part lines, drops empty and zero-length parts (warning), rejects points and polygons, "
         "drops Z/M, removes exact duplicates, computes length in the working CRS, right-hand-rule strike "
         "(length-weighted axial mean of segment azimuths, Mardia & Jupp 2000), dip and dip direction with "
-        "their sources, a stable fault_id, censoring at the mapped area's edges, and linked systems. "
+        "their sources, a stable fault_id, censoring at the mapped area's edges, and linked systems: pairs and short chains of along-strike segments, each tip linked to at most one mutual nearest partner within link_distance_m and link_length_ratio of the shorter trace, at most max_segments traces per system. "
         "Traces are stored oriented along their strike, so digitising direction never matters."
     ),
 )
