@@ -423,13 +423,34 @@ def _commit(tmp: pathlib.Path, final: pathlib.Path) -> None:
     os.replace(tmp, final)
 
 
+#: File that marks a folder as written by the demo (so a later demo may replace its files).
+DEMO_MARKER = ".faultmap_demo"
+
+
+def _check_demo_folder(folder: pathlib.Path) -> None:
+    """Refuse a folder that holds anything but an earlier demo (nothing is written before this)."""
+    if folder.exists() and not folder.is_dir():
+        raise OutputError(f"demo folder {folder} is a file; choose a new or empty folder")
+    if not folder.is_dir() or (folder / DEMO_MARKER).is_file():
+        return
+    found = sorted(p.name for p in folder.iterdir())
+    if found:
+        shown = ", ".join(found[:5]) + (" ..." if len(found) > 5 else "")
+        raise OutputError(
+            f"demo folder {folder} already holds files that an earlier demo did not write ({shown}); "
+            "choose a new or empty folder so that nothing of yours is overwritten"
+        )
+
+
 def write_demo_area(folder: str | os.PathLike[str], *, scale: float = 1.0) -> dict[str, pathlib.Path]:
     """Write the Drovessin Graben demo files into ``folder``.
 
     Parameters
     ----------
     folder : path
-        Output folder (created if missing). Existing demo files are replaced.
+        Output folder: new, empty, or one an earlier demo wrote (it holds the marker file
+        ``.faultmap_demo``); that demo's files are replaced. A folder holding other files is refused
+        before anything is written, so the demo never overwrites a user's data.
     scale : float
         Pixel-count factor, 0 < scale <= 2 (1: 1200 x 1200 pixels of 25 m;
         0.3: 360 x 360 pixels of 83.3 m over the same area and faults).
@@ -448,8 +469,11 @@ def write_demo_area(folder: str | os.PathLike[str], *, scale: float = 1.0) -> di
     import rasterio  # local: only this function touches files
 
     folder = pathlib.Path(folder)
+    _check_demo_folder(folder)
     try:
         folder.mkdir(parents=True, exist_ok=True)
+        (folder / DEMO_MARKER).write_text(f"{SCENARIO_NAME}: fictional demo area written by faultmap\n",
+                                           encoding="utf-8")
     except OSError as exc:
         raise OutputError(f"cannot create demo folder {folder}: {exc.strerror}; choose a writable folder") from None
     paths = {

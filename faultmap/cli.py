@@ -225,7 +225,6 @@ def build_cli() -> click.Group:
             from demo_area import write_demo_area
 
             folder_p = Path(folder)
-            folder_p.mkdir(parents=True, exist_ok=True)
             paths = write_demo_area(folder_p, scale=scale)
             from faultmap.project import read_project
 

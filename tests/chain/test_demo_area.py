@@ -87,7 +87,8 @@ def test_files_written_atomically(demo):
     folder, paths = demo
     assert set(paths) == {"faults", "dem", "transects", "truth", "truth_stations", "project"}
     assert all(p.exists() and p.parent == folder for p in paths.values())
-    assert sorted(p.name for p in folder.iterdir()) == sorted(p.name for p in paths.values())
+    # the six files and the marker that lets a later demo replace them (nothing else: no temporaries left)
+    assert sorted(p.name for p in folder.iterdir()) == sorted([*(p.name for p in paths.values()), ".faultmap_demo"])
 
 
 def test_dem_file(demo):
@@ -295,9 +296,9 @@ def test_deterministic_and_scale_keeps_the_scenario(tmp_path, demo):
     assert a["truth_stations"].read_bytes() == b["truth_stations"].read_bytes()
     # The truth does not depend on the pixel count.
     assert a["truth"].read_bytes() == demo[1]["truth"].read_bytes()
-    # Rewriting into the same folder replaces the files.
+    # Rewriting into the same folder replaces the files (six and the demo marker).
     write_demo_area(tmp_path / "a", scale=0.15)
-    assert len(list((tmp_path / "a").iterdir())) == 6
+    assert len(list((tmp_path / "a").iterdir())) == 7
 
 
 def test_scene_in_memory_matches_scenario():
@@ -307,3 +308,30 @@ def test_scene_in_memory_matches_scenario():
     assert list(truth.faults["name"]) == list(f["name"])
     np.testing.assert_allclose(truth.faults["max_throw_m"], f["max_throw_m"])
     assert len(demo_transects()) >= 2
+
+
+def test_demo_never_overwrites_a_users_files(tmp_path):
+    # Failure reported by a user: `faultmap demo DIR` into a folder holding their own faults.gpkg and
+    # project.toml overwrote them. Now refused before anything is written; the files stay byte-identical.
+    from click.testing import CliRunner
+
+    from faultmap.cli import build_cli
+
+    mine = {"faults.gpkg": b"my own traces", "project.toml": b"[inputs]\nfaults = 'x.gpkg'\n"}
+    for name, data in mine.items():
+        (tmp_path / name).write_bytes(data)
+    res = CliRunner().invoke(build_cli(), ["demo", str(tmp_path), "--scale", "0.2"])
+    assert res.exit_code == 2
+    assert "choose a new or empty folder" in res.output and "faults.gpkg" in res.output
+    assert len(res.output.strip().splitlines()) == 1
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(mine)
+    for name, data in mine.items():
+        assert (tmp_path / name).read_bytes() == data
+
+
+def test_demo_folder_is_marked_and_may_be_written_again(demo):
+    from demo_area.scenario import DEMO_MARKER, _check_demo_folder
+
+    folder, _paths = demo
+    assert (folder / DEMO_MARKER).is_file()
+    _check_demo_folder(folder)  # an earlier demo's folder is accepted (its files are replaced)
