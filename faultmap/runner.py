@@ -127,12 +127,17 @@ class RunContext:
         )
 
     def save_figure(self, fig, name: str, *, dpi: int = 170) -> None:
-        """Stage a matplotlib figure; it is moved into place after the GeoPackage is written."""
+        """Stage a matplotlib figure; it is moved into place after the GeoPackage is written.
+
+        Saved cropped to its content and at most :data:`faultmap.figure_kit.MAX_SIDE_PX` pixels a side.
+        """
         if self._stage is None:
             return
+        from faultmap.figure_kit import save_bounded
+
         tmp = self._stage / name
         tmp.parent.mkdir(parents=True, exist_ok=True)
-        fig.savefig(tmp, dpi=dpi, bbox_inches="tight")
+        save_bounded(fig, tmp, dpi=dpi)
         self._figures[name] = tmp
 
     @property

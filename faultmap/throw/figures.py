@@ -2,6 +2,9 @@
 
 Every function returns a :class:`matplotlib.figure.Figure` built without
 pyplot's global state; callers save it (``fig.savefig(path, dpi=170)``).
+Figures stay bounded (:mod:`faultmap.figure_kit`) whatever the number of
+faults: maps draw all traces as one collection, profile figures show the
+largest faults or systems and say how many were left out.
 """
 
 from __future__ import annotations
@@ -10,11 +13,13 @@ import math
 
 import numpy as np
 import shapely
-from matplotlib.collections import LineCollection
+from matplotlib.collections import LineCollection, PolyCollection
 from matplotlib.colors import Normalize
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
+from matplotlib.ticker import MaxNLocator
 
+from faultmap.figure_kit import bounded, line_parts, panel_grid, place_labels, shown_note, trace_width
 from faultmap.numerics.hillshade import hillshade as _shade
 
 __all__ = ["hillshade", "throw_map", "throw_profiles", "system_profiles"]
@@ -67,6 +72,8 @@ def throw_map(
     title: str | None = None,
     cmap: str = "viridis",
     figsize=(8.0, 7.0),
+    n_labels: int = 8,
+    max_ticks: int = 400,
 ) -> Figure:
     """Map of fault traces coloured by maximum throw over a hillshade.
 
@@ -81,57 +88,69 @@ def throw_map(
         Transform of ``elevation``.
     column : str
         Field to colour by.
+    n_labels : int
+        The largest faults (by ``column``) labelled with their id (and
+        name); labels that would overlap or leave the map are skipped.
+    max_ticks : int
+        Down-thrown-side ticks are drawn on at most this many faults (the
+        largest); the figure says how many were left out.
 
     Returns
     -------
     matplotlib.figure.Figure
+        All traces in one collection (the largest on top), line width
+        thinning as traces crowd; axes in metres.
     """
     fig = Figure(figsize=figsize)
     ax = fig.add_subplot(1, 1, 1)
-    if elevation is not None and transform is not None and np.size(elevation):
+    has_dem = elevation is not None and transform is not None and np.size(elevation)
+    if has_dem:
         hs = hillshade(elevation, transform)
         ax.imshow(
             hs, extent=_extent(hs, transform), cmap="gray", vmin=0, vmax=1, interpolation="bilinear", zorder=0
         )
-    vals = faults[column].to_numpy(dtype=float) if column in faults.columns else np.full(len(faults), np.nan)
+    n = len(faults)
+    vals = faults[column].to_numpy(dtype=float) if column in faults.columns else np.full(n, np.nan)
     geoms = faults.geometry.to_numpy()
-    segs = [shapely.get_coordinates(g) for g in geoms]
+    segs, owner = line_parts(geoms)
     good = np.isfinite(vals)
     vmax = float(np.nanmax(vals)) if good.any() else 1.0
     norm = Normalize(vmin=0.0, vmax=vmax if vmax > 0 else 1.0)
-    if good.any():
-        lc = LineCollection(
-            [segs[i] for i in np.flatnonzero(good)],
-            array=vals[good],
-            cmap=cmap,
-            norm=norm,
-            linewidths=2.0,
-            zorder=3,
-        )
+    lw = trace_width(n)
+    seg_good = good[owner]
+    if seg_good.any():
+        idx = np.flatnonzero(seg_good)
+        idx = idx[np.argsort(vals[owner[idx]], kind="stable")]  # the largest drawn last, on top
+        lc = LineCollection([segs[i] for i in idx], array=vals[owner[idx]], cmap=cmap, norm=norm,
+                            linewidths=lw, zorder=3)
         ax.add_collection(lc)
         cb = fig.colorbar(lc, ax=ax, shrink=0.8)
         cb.set_label("maximum throw (m)")
-    if (~good).any():
+    bad = ~good
+    if bad.any():
         ax.add_collection(
-            LineCollection(
-                [segs[i] for i in np.flatnonzero(~good)],
-                colors="0.4",
-                linestyles="--",
-                linewidths=1.2,
-                zorder=2,
-            )
+            LineCollection([segs[i] for i in np.flatnonzero(~seg_good)], colors="0.4", linestyles="--",
+                           linewidths=0.6 * lw, zorder=2)
         )
     handles = [Line2D([], [], color="tab:green", lw=2, label="fault trace (colour: max throw)")]
-    if (~good).any():
+    if bad.any():
         handles.append(Line2D([], [], color="0.4", ls="--", lw=1.2, label="no usable station"))
+    notes = []
     # down-thrown side: a tick from the trace's midpoint towards the dip direction (map convention),
     # black where the dip direction was given, red where it was inferred from the DEM
-    if "dip_dir_deg" in faults.columns and len(faults):
+    if "dip_dir_deg" in faults.columns and n:
         dd = faults["dip_dir_deg"].to_numpy(dtype=float)
         known = np.isfinite(dd)
+        if known.sum() > max_ticks:
+            rank = np.argsort(-np.nan_to_num(vals, nan=-np.inf), kind="stable")
+            top = np.zeros(n, bool)
+            top[rank[known[rank]][:max_ticks]] = True
+            notes.append("down-thrown ticks: " + shown_note(max_ticks, int(known.sum()), "faults",
+                                                             "the largest by maximum throw"))
+            known = top
         if known.any():
             xmin, ymin, xmax, ymax = faults.total_bounds
-            if elevation is not None and transform is not None and np.size(elevation):
+            if has_dem:
                 e = _extent(elevation, transform)
                 xmin, xmax, ymin, ymax = min(xmin, e[0]), max(xmax, e[1]), min(ymin, e[2]), max(ymax, e[3])
             tick = 0.012 * max(xmax - xmin, ymax - ymin, 1.0)
@@ -151,17 +170,16 @@ def throw_map(
                 if sel.any():
                     ax.add_collection(
                         LineCollection(
-                            np.stack([mids[sel], ends[sel]], axis=1), colors=col, linewidths=1.2, zorder=4
+                            np.stack([mids[sel], ends[sel]], axis=1), colors=col, linewidths=min(1.2, lw),
+                            zorder=4,
                         )
                     )
                     handles.append(Line2D([], [], color=col, lw=1.2, label=lab))
-    if len(faults):
+    if n:
         xmin, ymin, xmax, ymax = faults.total_bounds
         pad = 0.05 * max(xmax - xmin, ymax - ymin, 1.0)
-        if elevation is not None and transform is not None and np.size(elevation):
+        if has_dem:
             e = _extent(elevation, transform)
-            xmin, xmax = min(xmin - pad, e[0]), max(xmax + pad, e[1])
-            ymin, ymax = min(ymin - pad, e[2]), max(ymax + pad, e[3])
             ax.set_xlim(e[0], e[1])
             ax.set_ylim(e[2], e[3])
         else:
@@ -175,8 +193,25 @@ def throw_map(
     ax.ticklabel_format(style="plain", useOffset=False)
     for lab in ax.get_xticklabels():
         lab.set_rotation(30)
-    fig.tight_layout()
-    return fig
+    if notes:
+        fig.text(0.01, 0.005, "; ".join(notes), fontsize=7, ha="left", va="bottom", color="0.25")
+    fig.tight_layout(rect=(0, 0.03 if notes else 0, 1, 1))
+    if n_labels > 0 and good.any() and "fault_id" in faults.columns:
+        _label_largest(ax, faults, geoms, vals, n_labels)
+    return bounded(fig)
+
+
+def _label_largest(ax, faults, geoms, vals, n_labels: int) -> None:
+    """Label the largest faults at their midpoints (id, and name where given), skipping overlaps."""
+    cand = np.flatnonzero(np.isfinite(vals))
+    cand = cand[np.argsort(-vals[cand], kind="stable")][: 6 * n_labels]
+    mids = shapely.get_coordinates(shapely.line_interpolate_point(geoms[cand], 0.5, normalized=True))
+    ids = faults["fault_id"].to_numpy()[cand]
+    names = faults["name"].to_numpy()[cand] if "name" in faults.columns else np.full(cand.size, None)
+    texts = [
+        f"{fid}" + (f" {nm}" if isinstance(nm, str) and nm else "") for fid, nm in zip(ids, names, strict=True)
+    ]
+    place_labels(ax, mids, texts, priority=vals[cand], max_labels=n_labels, fontsize=7)
 
 
 def _profile_panel(ax, s, title, smooth=True):
@@ -229,25 +264,32 @@ def throw_profiles(faults, stations, *, fault_ids=None, n_largest: int = 6, ncol
 
     Each panel shows station throws with 1-sigma error bars, the smoothed
     profile with its error band, and the positions of stations that could
-    not be measured, by status.
+    not be measured, by status. The title says how many faults were left
+    out; at most ``n_largest`` panels are drawn (also of ``fault_ids``).
 
     Returns
     -------
     matplotlib.figure.Figure
     """
     f = faults.set_index("fault_id", drop=False)
+    n_largest = max(1, int(n_largest))
     if fault_ids is None:
         order = f["max_throw_m"].astype(float).sort_values(ascending=False, na_position="last")
-        fault_ids = [int(i) for i in order.index[: max(1, n_largest)]]
+        fault_ids = [int(i) for i in order.index[:n_largest]]
+        by = "the largest by maximum throw"
+    else:
+        fault_ids = list(fault_ids)[:n_largest]
+        by = "the first of those asked for"
     fault_ids = list(fault_ids)
     n = max(1, len(fault_ids))
-    ncols = min(ncols, n)
-    nrows = int(math.ceil(n / ncols))
-    fig = Figure(figsize=(5.2 * ncols, 3.2 * nrows))
+    nrows, ncols, size = panel_grid(n, max_cols=max(ncols, math.ceil(n / 6)), extra_h=0.9)
+    fig = Figure(figsize=size)
     handles = {}
+    sub = stations.loc[stations["fault_id"].isin(fault_ids)]
+    groups = {k: v for k, v in sub.groupby("fault_id", sort=False)}
     for k, fid in enumerate(fault_ids):
         ax = fig.add_subplot(nrows, ncols, k + 1)
-        s = stations.loc[stations["fault_id"] == fid]
+        s = groups.get(fid, sub.iloc[:0])
         r = f.loc[fid]
         name = str(r.get("name", "") or "")
         mt, me = float(r.get("max_throw_m", np.nan)), float(r.get("max_throw_err_m", np.nan))
@@ -267,17 +309,29 @@ def throw_profiles(faults, stations, *, fault_ids=None, n_largest: int = 6, ncol
         fontsize=8,
         frameon=False,
     )
-    fig.suptitle("Along-strike throw profiles", fontsize=11)
-    fig.tight_layout(rect=(0, 0.07, 1, 0.96))
-    return fig
+    note = shown_note(len(fault_ids), len(faults), "faults", by)
+    fig.suptitle(f"Along-strike throw profiles ({note})", fontsize=11)
+    h = fig.get_figheight()
+    fig.tight_layout(rect=(0, min(0.3, 0.75 / h), 1, 1 - min(0.1, 0.45 / h)))
+    return bounded(fig)
 
 
-def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols: int = 2) -> Figure:
+# colours of the segments of one system, cycled
+_SEG_COLOURS = ("tab:blue", "tab:orange", "tab:green", "tab:purple", "tab:brown", "tab:pink", "tab:olive",
+                "tab:cyan")
+
+
+def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols: int = 2,
+                    max_legend_segments: int = 6) -> Figure:
     """Throw along each linked fault system (segments sharing a ``system_id``).
 
     Stations are placed on the system's strike axis; each segment's smoothed
     throw is drawn in its own colour, their sum in black, and the linkage
-    zones (throw minima between segments) as red markers.
+    zones (throw minima between segments) as red markers. Only the
+    ``max_systems`` largest systems (by summed maximum throw) get a panel
+    and the title says how many were left out; a system's segments are one
+    collection whatever their number, named in the legend when there are at
+    most ``max_legend_segments``.
 
     Returns
     -------
@@ -285,23 +339,29 @@ def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols
     """
     from faultmap.throw.linkage import _station_lookup, system_profile
 
+    max_systems = max(1, int(max_systems))
+    n_systems = 0
     if "system_id" in faults.columns:
         counts = faults["system_id"].value_counts()
-        sys_ids = [int(s) for s in counts.index[counts.to_numpy() > 1]]
+        multi = counts[counts.to_numpy() > 1]
+        n_systems = len(multi)
         # largest systems first (by summed max throw)
-        tot = faults.groupby("system_id")["max_throw_m"].sum() if "max_throw_m" in faults.columns else counts
-        sys_ids = sorted(sys_ids, key=lambda s: -float(np.nan_to_num(tot.get(s, 0.0))))[:max_systems]
+        if "max_throw_m" in faults.columns:
+            tot = faults.groupby("system_id")["max_throw_m"].sum().reindex(multi.index).fillna(0.0)
+        else:
+            tot = multi.astype(float)
+        order = np.lexsort((multi.index.to_numpy(), -tot.to_numpy(dtype=float)))
+        sys_ids = [int(x) for x in multi.index.to_numpy()[order][:max_systems]]
     else:
         sys_ids = []
     n = max(1, len(sys_ids))
-    ncols = min(ncols, n)
-    nrows = int(math.ceil(n / ncols))
-    fig = Figure(figsize=(5.2 * ncols, 3.2 * nrows))
+    nrows, ncols, size = panel_grid(n, max_cols=max(ncols, math.ceil(n / 6)), extra_h=0.5)
+    fig = Figure(figsize=size)
     if not sys_ids:
         ax = fig.add_subplot(1, 1, 1)
         ax.text(0.5, 0.5, "no linked fault systems", ha="center", va="center", transform=ax.transAxes)
         ax.set_axis_off()
-        return fig
+        return bounded(fig)
     st = stations
     if "x" not in st.columns and hasattr(st, "geometry"):
         st = st.assign(x=st.geometry.x, y=st.geometry.y)
@@ -311,12 +371,24 @@ def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols
         fs = faults.loc[faults["system_id"] == sid]
         sp = system_profile(fs, st, _lookup=lookup)
         ax_deg = float("nan")
+        handles = []
         if sp is not None:
             ax_deg = sp["axis_deg"]
-            for fid, _, a, t, e in sp["segments"]:
-                ax.fill_between(a, t - e, t + e, alpha=0.2, lw=0)
-                ax.plot(a, t, "-o", ms=2.5, lw=1.2, label=f"fault {fid}")
-            ax.plot(sp["grid"], sp["total"], "k-", lw=1.8, label="sum of segments")
+            segs = sp["segments"]
+            cols = [_SEG_COLOURS[i % len(_SEG_COLOURS)] for i in range(len(segs))]
+            bands = [np.r_[np.c_[a, t - e], np.c_[a, t + e][::-1]] for _, _, a, t, e in segs]
+            ax.add_collection(PolyCollection(bands, facecolors=cols, alpha=0.2, linewidths=0))
+            lines = [np.c_[a, t] for _, _, a, t, _ in segs]
+            ax.add_collection(LineCollection(lines, colors=cols, linewidths=1.2))
+            if len(segs) <= max_legend_segments:
+                handles += [Line2D([], [], color=c, lw=1.2, label=f"fault {fid}")
+                            for c, (fid, *_) in zip(cols, segs, strict=True)]
+            else:
+                handles.append(Line2D([], [], color=cols[0], lw=1.2,
+                                      label=f"{len(segs)} segments (one colour each)"))
+            ax.plot(sp["grid"], sp["total"], "k-", lw=1.8)
+            handles.append(Line2D([], [], color="k", lw=1.8, label="sum of segments"))
+            ax.autoscale_view()
         else:
             ax.text(
                 0.5, 0.5, "fewer than two measured segments", ha="center", va="center", transform=ax.transAxes
@@ -324,19 +396,17 @@ def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols
         if zones is not None and len(zones):
             z = zones.loc[zones["system_id"] == sid]
             if len(z):
-                ax.plot(
-                    z["along_m"],
-                    z["throw_min_m"],
-                    "v",
-                    color="tab:red",
-                    ms=8,
-                    label="linkage zone (throw minimum)",
-                )
+                ax.plot(z["along_m"], z["throw_min_m"], "v", color="tab:red", ms=8)
+                handles.append(Line2D([], [], color="tab:red", marker="v", ls="", ms=8,
+                                      label="linkage zone (throw minimum)"))
         ax.set_title(f"system {sid}: {len(fs)} segments", fontsize=9)
         ax.set_xlabel(f"distance along system strike axis {ax_deg:.0f}° (m)")
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=5))
         ax.set_ylabel("throw (m)")
         ax.axhline(0, color="0.6", lw=0.6)
-        ax.legend(fontsize=7, loc="best", framealpha=0.85)
-    fig.suptitle("Throw along linked fault systems", fontsize=11)
-    fig.tight_layout(rect=(0, 0, 1, 0.96))
-    return fig
+        if handles:
+            ax.legend(handles=handles, fontsize=7, loc="upper right", framealpha=0.85)
+    note = shown_note(len(sys_ids), n_systems, "linked systems", "the largest by summed maximum throw")
+    fig.suptitle(f"Throw along linked fault systems ({note})", fontsize=11)
+    fig.tight_layout(rect=(0, 0, 1, 1 - min(0.1, 0.45 / fig.get_figheight())))
+    return bounded(fig)
