@@ -136,6 +136,14 @@ def condition_traces(
     warnings: list[str] = []
     f = dict(DEFAULT_FIELDS)
     f.update(fields or {})
+    # a field the user mapped explicitly must exist (a default name may be absent: then it is unknown)
+    absent = [f"{k}={v}" for k, v in (fields or {}).items() if v != DEFAULT_FIELDS.get(k) and v not in gdf.columns]
+    if absent:
+        have = ", ".join(str(c) for c in gdf.columns if c != gdf.geometry.name) or "none"
+        raise InputError(
+            f"{where}: no column for the field mapping {', '.join(absent)}; columns are: {have}. "
+            "Fix --field NAME=COLUMN (or [fields] in the project file)."
+        )
     gdf = gdf.reset_index(drop=True)
     fid = np.arange(1, len(gdf) + 1)
     geoms = gdf.geometry.to_numpy()
