@@ -237,6 +237,20 @@ def condition_traces(
         else name_raw.astype(object).where(name_raw.notna(), "").astype(str).to_numpy(dtype=object)
     )
 
+    loops = ~shapely.is_simple(lines)
+    if loops.any():
+        warnings.append(
+            f"{where}: features {_ids(ids[loops])} cross themselves; they are measured as digitised, but "
+            "check them (a trace that loops back gives stations on both limbs)."
+        )
+    named = pd.Series(names[names != ""])
+    repeated = named[named.duplicated()].unique()
+    if len(repeated):
+        warnings.append(
+            f"{where}: {len(repeated)} fault names are used by several traces ({_ids(repeated)}); each trace keeps "
+            "its own fault_id, and linked systems come from geometry, not from names."
+        )
+
     strike = strike_from_geometry(lines, dd)
     # dip direction disagreeing with the trace (more than 45 deg off the normal) is a user error worth a warning
     axis = strike_from_geometry(lines)

@@ -31,3 +31,18 @@ def test_mapped_field_present_is_used_and_default_names_may_be_absent():
     # no mapping and no `dip` column: the default dip is used (not an error)
     faults, warns = condition_traces(_traces(other=[1, 2]))
     assert set(faults["dip_source"]) == {"default"}
+
+
+def test_self_crossing_traces_and_repeated_names_are_reported():
+    # Failures reported: a self-intersecting trace was measured without a word; duplicate names passed
+    # silently. Both are now warnings naming the features (the data are kept as digitised).
+    loop = shapely.LineString([(0, 0), (0, 1000), (300, 500), (-300, 500)])  # crosses itself
+    ok = shapely.LineString([(2000, 0), (2000, 1000)])
+    ok2 = shapely.LineString([(4000, 0), (4000, 1000)])
+    g = gpd.GeoDataFrame({"name": ["A", "B", "B"]}, geometry=[loop, ok, ok2], crs="EPSG:32633")
+    faults, warns = condition_traces(g, where="f.gpkg")
+    assert len(faults) == 3
+    assert any("features 1 cross themselves" in w for w in warns)
+    assert any("fault names are used by several traces (B)" in w for w in warns)
+    _, clean = condition_traces(g.iloc[1:2], where="f.gpkg")
+    assert not any("cross themselves" in w or "several traces" in w for w in clean)
