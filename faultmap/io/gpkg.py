@@ -108,6 +108,70 @@ def _write_one(path: Path, name: str, df) -> None:
     pyogrio.write_dataframe(df, path, layer=name, driver="GPKG", **kwargs)
 
 
+#: First spatial-reference id of our own for a CRS written exactly (above the registered EPSG codes).
+OWN_SRS_ID = 100000
+
+
+def _loosely_matched(path: Path, layer: str, crs) -> bool:
+    """Whether ``layer`` reads back in a CRS other than ``crs`` with the same ellipsoid and projection.
+
+    That is the writer naming a custom CRS by a registered code whose datum differs: the coordinates
+    are right and only the label is loose. Any other difference stays an error for the caller.
+    """
+    import pyogrio
+    from pyproj import CRS
+
+    text = pyogrio.read_info(path, layer=layer).get("crs")
+    if not text:
+        return False
+    back = CRS.from_user_input(text)
+    if back.equals(crs) or not (back.is_projected and crs.is_projected):
+        return False
+    ea, eb = back.ellipsoid, crs.ellipsoid
+    oa, ob = back.coordinate_operation, crs.coordinate_operation
+    if ea is None or eb is None or oa is None or ob is None or oa.method_name != ob.method_name:
+        return False
+    same_ellipsoid = abs(ea.semi_major_metre - eb.semi_major_metre) < 1e-6 and abs(
+        ea.inverse_flattening - eb.inverse_flattening) < 1e-9
+    pa, pb = [(q.name, q.value) for q in oa.params], [(q.name, q.value) for q in ob.params]
+    same_params = len(pa) == len(pb) and all(n1 == n2 and abs(v1 - v2) < 1e-9 for (n1, v1), (n2, v2) in zip(pa, pb, strict=True))
+    return same_ellipsoid and same_params and back.axis_info[0].unit_name == crs.axis_info[0].unit_name
+
+
+def _pin_crs(path: Path, layers: list[str], crs) -> int:
+    """Give ``layers`` a spatial-reference row of our own holding ``crs``'s WKT, exactly.
+
+    GDAL's GeoPackage writer may identify a custom CRS (for example a transverse Mercator on GRS80
+    given by its parameters) with a registered EPSG code whose datum differs; the layers would then
+    read back in another CRS. The row's ``organization`` is ``FAULTMAP`` and its ``definition`` the
+    WKT of ``crs`` (GeoPackage 1.2, table ``gpkg_spatial_ref_sys``).
+
+    Returns
+    -------
+    int
+        The spatial-reference id used.
+    """
+    import sqlite3
+
+    con = sqlite3.connect(path)
+    try:
+        with con:
+            top = con.execute("SELECT max(srs_id) FROM gpkg_spatial_ref_sys").fetchone()[0] or 0
+            srs_id = max(OWN_SRS_ID, int(top) + 1)
+            con.execute(
+                "INSERT INTO gpkg_spatial_ref_sys (srs_name, srs_id, organization, organization_coordsys_id, "
+                "definition, description) VALUES (?, ?, 'FAULTMAP', ?, ?, ?)",
+                (crs.name or "working CRS", srs_id, srs_id, crs.to_wkt("WKT1_GDAL"),
+                 "working CRS of a faultmap run, written exactly (no registered code matches it)"),
+            )
+            marks = ",".join("?" * len(layers))
+            con.execute(f"UPDATE gpkg_geometry_columns SET srs_id = ? WHERE table_name IN ({marks})", (srs_id, *layers))
+            con.execute(f"UPDATE gpkg_contents SET srs_id = ? WHERE table_name IN ({marks})", (srs_id, *layers))
+    finally:
+        con.close()
+    return srs_id
+
+
 def write_gpkg(target, layers: dict, *, crs, overwrite: bool = False) -> Path:
     """Write all ``layers`` of a run into ``target`` atomically.
 
@@ -144,6 +208,9 @@ def write_gpkg(target, layers: dict, *, crs, overwrite: bool = False) -> Path:
             if df is None:
                 continue
             _write_one(tmp, name, _prepare_layer(name, df, crs))
+        geo = [name for name, df in layers.items() if isinstance(df, gpd.GeoDataFrame)]
+        if geo and _loosely_matched(tmp, geo[0], crs):
+            _pin_crs(tmp, geo, crs)  # a custom CRS the writer matched loosely to a registered one
         for name, df in layers.items():
             if isinstance(df, gpd.GeoDataFrame):
                 info = pyogrio.read_info(tmp, layer=name)

@@ -116,3 +116,24 @@ def test_field_names_sanitised():
     df = pd.DataFrame({"Max Throw (m)": [1], "select": [2], "max_throw_m": [3], "MAX_THROW_M": [4]})
     out = gpkg.sanitize_columns(df)
     assert list(out.columns) == ["max_throw__m", "select_", "max_throw_m", "max_throw_m_2"]
+
+
+@pytest.mark.parametrize("ellps,registered", [("GRS80", 25833), ("WGS84", 32633)])
+def test_custom_crs_matching_a_registered_one_round_trips_exactly(tmp_path, ellps, registered):
+    # Failure reported: traces in a custom transverse Mercator whose parameters match a registered CRS
+    # (UTM 33N on GRS80 or WGS84, but with an unnamed datum) failed at the very end with "CRS changed on
+    # writing": the writer labels it with the registered code. The working CRS is now written exactly
+    # (its WKT under a spatial-reference id of our own) and reads back equal (pyproj CRS.equals).
+    custom = CRS.from_proj4(f"+proj=tmerc +lat_0=0 +lon_0=15 +k=0.9996 +x_0=500000 +y_0=0 +ellps={ellps} +units=m")
+    assert not custom.equals(CRS.from_epsg(registered)) and custom.to_epsg() == registered  # the trap
+    layers = _layers()
+    for name in ("faults", "throw_stations"):
+        layers[name] = layers[name].set_crs(custom, allow_override=True)
+    out = write_gpkg(tmp_path / "c.gpkg", layers, crs=custom)
+    for layer in ("faults", "throw_stations"):
+        back = pyogrio.read_dataframe(out, layer=layer).crs
+        assert back.equals(custom) and back.equals(CRS.from_wkt(custom.to_wkt()))
+    assert check_conformance(out) == []
+    with sqlite3.connect(out) as con:
+        rows = con.execute("SELECT organization, srs_id FROM gpkg_spatial_ref_sys WHERE srs_id >= 100000").fetchall()
+    assert rows == [("FAULTMAP", 100000)]
