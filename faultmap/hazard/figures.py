@@ -1,7 +1,10 @@
 """Figures of the hazard screening (matplotlib, object API, no pyplot state).
 
 Every figure carries the screening caution (:data:`faultmap.hazard.screening.CAUTION`)
-in its caption, printed under the axes.
+in its caption, printed under the axes. Figures stay bounded whatever the
+number of faults (:mod:`faultmap.figure_kit`): traces and zones are single
+collections, only the largest faults are labelled (labels never overlap) and
+the figures say how many were left out.
 """
 
 from __future__ import annotations
@@ -17,6 +20,7 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, PathPatch
 from matplotlib.path import Path
 
+from faultmap.figure_kit import bounded, line_parts, place_labels, shown_note, trace_width
 from faultmap.hazard.caution import CAUTION
 from faultmap.hazard.magnitudes import MAGNITUDE_KEYS, get_relation
 
@@ -57,29 +61,29 @@ def _caption(fig: Figure, text: str, width: int = 120) -> None:
     fig.text(0.01, 0.01, textwrap.fill(text, width), ha="left", va="bottom", fontsize=7, wrap=True)
 
 
-def _polygon_path(geom) -> Path | None:
-    """Compound path (exteriors and holes) of a Polygon / MultiPolygon."""
-    verts, codes = [], []
-    for poly in shapely.get_parts(np.asarray([geom], dtype=object)):
-        if poly is None or poly.is_empty or poly.geom_type != "Polygon":
-            continue
-        for ring in [poly.exterior, *poly.interiors]:
-            xy = np.asarray(ring.coords)
-            if len(xy) < 3:
-                continue
-            verts.append(xy)
-            c = np.full(len(xy), Path.LINETO, dtype=np.uint8)
-            c[0] = Path.MOVETO
-            c[-1] = Path.CLOSEPOLY
-            codes.append(c)
-    if not verts:
+def _polygons_path(geoms) -> Path | None:
+    """One compound path of every ring (exteriors and holes) of the polygons in ``geoms``, vectorised."""
+    g = np.asarray(list(geoms), dtype=object)
+    if g.size == 0:
         return None
-    return Path(np.concatenate(verts), np.concatenate(codes))
+    parts = shapely.get_parts(g)
+    parts = parts[(shapely.get_type_id(parts) == 3) & ~shapely.is_empty(parts)]
+    if parts.size == 0:
+        return None
+    rings = shapely.get_rings(parts)
+    xy, idx = shapely.get_coordinates(rings, return_index=True)
+    if xy.shape[0] == 0:
+        return None
+    codes = np.full(len(xy), Path.LINETO, dtype=np.uint8)
+    first = np.r_[0, np.flatnonzero(np.diff(idx)) + 1]
+    last = np.r_[first[1:] - 1, len(xy) - 1]
+    codes[first] = Path.MOVETO
+    codes[last] = Path.CLOSEPOLY
+    return Path(xy, codes)
 
 
 def _line_segments(geoms: np.ndarray) -> list[np.ndarray]:
-    parts = shapely.get_parts(shapely.line_merge(geoms)) if len(geoms) else []
-    return [np.asarray(p.coords)[:, :2] for p in parts if p is not None and not p.is_empty]
+    return line_parts(shapely.line_merge(geoms) if len(geoms) else geoms)[0]
 
 
 def hazard_map(
@@ -89,6 +93,7 @@ def hazard_map(
     title: str = "Active-fault screening",
     figsize: tuple[float, float] = (8.0, 8.5),
     dpi: int = 150,
+    n_labels: int = 15,
 ) -> Figure:
     """Map of the active faults, their rupture zones and magnitude labels.
 
@@ -103,6 +108,11 @@ def hazard_map(
     figsize : tuple of float, optional
         Inches.
     dpi : int, optional
+    n_labels : int, optional
+        Most screened faults labelled, the largest preferred magnitude
+        first (then the longest); a label that would overlap another, the
+        legend or the frame is skipped. The figure says how many were
+        labelled.
 
     Returns
     -------
@@ -119,24 +129,20 @@ def hazard_map(
     else:
         screened = np.zeros(len(faults), bool)
     geoms = faults.geometry.to_numpy()
-    patches = [PathPatch(p) for p in (_polygon_path(g) for g in zones.geometry) if p is not None]
-    if patches:
-        ax.add_collection(PatchCollection(patches, facecolor="#f4a582", edgecolor="#b2182b", linewidth=0.6, alpha=0.55, zorder=1))
+    path = _polygons_path(zones.geometry.to_numpy())
+    if path is not None:
+        # one compound path in one collection; limits are set below (no per-vertex limit update)
+        ax.add_collection(PatchCollection([PathPatch(path)], facecolor="#f4a582", edgecolor="#b2182b", linewidth=0.6,
+                                          alpha=0.55, zorder=1), autolim=False)
+    lw = trace_width(len(faults), widest=1.8)
     other = _line_segments(geoms[~screened])
     if other:
-        ax.add_collection(LineCollection(other, colors="0.55", linewidths=0.8, zorder=2))
+        ax.add_collection(LineCollection(other, colors="0.55", linewidths=min(0.8, lw), zorder=2))
     act = _line_segments(geoms[screened])
     if act:
-        ax.add_collection(LineCollection(act, colors="#b2182b", linewidths=1.8, zorder=3))
+        ax.add_collection(LineCollection(act, colors="#b2182b", linewidths=lw, zorder=3))
     mags = faults["mag_preferred"].to_numpy(float) if "mag_preferred" in faults.columns else np.full(len(faults), np.nan)
     ids = faults["fault_id"].to_numpy()
-    if screened.any():
-        mid = shapely.line_interpolate_point(geoms[screened], 0.5, normalized=True)
-        xy = shapely.get_coordinates(mid)
-        for (x, y), fid, m in zip(xy, ids[screened], mags[screened], strict=True):
-            txt = f"F{fid}" + (f"  M{m:.1f}" if np.isfinite(m) else "")
-            ax.annotate(txt, (x, y), xytext=(6, 6), textcoords="offset points", fontsize=8,
-                        bbox=dict(boxstyle="round,pad=0.2", fc="white", ec="0.6", alpha=0.85), zorder=4)
     b = np.asarray(faults.total_bounds, float)
     if len(zones):
         zb = np.asarray(zones.total_bounds, float)
@@ -150,17 +156,32 @@ def hazard_map(
     ax.set_ylabel("Northing (m)", fontsize=10)
     ax.ticklabel_format(style="plain", useOffset=False)
     ax.tick_params(labelsize=8)
-    ax.set_title(title, fontsize=12)
+    ax.set_title(title, fontsize=12, pad=16)
     ax.legend(
         handles=[
             Line2D([], [], color="#b2182b", lw=1.8, label="screened (active) fault"),
             Line2D([], [], color="0.55", lw=0.8, label="other fault"),
             Patch(facecolor="#f4a582", edgecolor="#b2182b", alpha=0.55, label="surface-rupture zone"),
         ],
-        loc="best", fontsize=8, framealpha=0.9,
+        loc="upper right", fontsize=8, framealpha=0.9,
     )
+    n_scr = int(screened.sum())
+    placed = []
+    if n_scr and n_labels > 0:
+        sel = np.flatnonzero(screened)
+        length = shapely.length(geoms[sel])
+        # the largest magnitude first, then the longest; only a few candidates are ever measured
+        order = np.lexsort((-length, -np.nan_to_num(mags[sel], nan=-np.inf)))[: 6 * n_labels]
+        sel = sel[order]
+        xy = shapely.get_coordinates(shapely.line_interpolate_point(geoms[sel], 0.5, normalized=True))
+        txt = [f"F{fid}" + (f"  M{m:.1f}" if np.isfinite(m) else "") for fid, m in zip(ids[sel], mags[sel], strict=True)]
+        placed = place_labels(ax, xy, txt, priority=-np.arange(sel.size, dtype=float), max_labels=n_labels, fontsize=8)
+    if n_scr:
+        ax.text(0.5, 1.01, "labelled: " + shown_note(len(placed), n_scr, "screened faults",
+                                                      "the largest magnitudes, without overlaps").replace(" shown", ""),
+                transform=ax.transAxes, ha="center", va="bottom", fontsize=8, color="0.3")
     _caption(fig, map_caption())
-    return fig
+    return bounded(fig)
 
 
 def magnitude_by_relation(
@@ -177,7 +198,8 @@ def magnitude_by_relation(
     scenarios : geopandas.GeoDataFrame or pandas.DataFrame
         The ``rupture_scenarios`` layer.
     max_scenarios : int, optional
-        Plot at most this many scenarios (the largest by ``mag_preferred``).
+        Plot at most this many scenarios (the largest by ``mag_preferred``);
+        the figure says how many were left out.
     figsize : tuple of float, optional
     dpi : int, optional
 
@@ -188,6 +210,7 @@ def magnitude_by_relation(
     fig = Figure(figsize=figsize, dpi=dpi)
     ax = fig.add_axes((0.08, 0.3, 0.6, 0.62))
     sc = scenarios
+    n_total = len(sc)
     if len(sc) > max_scenarios:
         sc = sc.sort_values("mag_preferred", ascending=False).head(max_scenarios)
     sc = sc.sort_values(["n_faults", "length_km"]) if len(sc) else sc
@@ -216,7 +239,9 @@ def magnitude_by_relation(
     ax.set_xlabel("Rupture scenario (kind, fault ids)", fontsize=10)
     ax.set_ylabel("Moment magnitude Mw", fontsize=10)
     ax.grid(axis="y", color="0.9")
-    ax.set_title("Magnitude by empirical relation", fontsize=12)
+    ax.set_title("Magnitude by empirical relation", fontsize=12, pad=16)
+    ax.text(0.5, 1.01, shown_note(len(sc), n_total, "rupture scenarios", "the largest preferred magnitudes"),
+            transform=ax.transAxes, ha="center", va="bottom", fontsize=8, color="0.3")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8, framealpha=0.9)
     _caption(fig, relations_caption(), width=140)
-    return fig
+    return bounded(fig)

@@ -89,8 +89,8 @@ def run(ctx, p: dict) -> None:
     if ctx.figures_enabled and n:
         from faultmap.hazard.figures import hazard_map, magnitude_by_relation
 
-        ctx.save_figure(hazard_map(res.faults, res.zones), MAP_FIGURE)
-        ctx.save_figure(magnitude_by_relation(res.scenarios), MAGNITUDE_FIGURE)
+        ctx.save_figure(hazard_map(res.faults, res.zones, n_labels=p["n_map_labels"]), MAP_FIGURE)
+        ctx.save_figure(magnitude_by_relation(res.scenarios, max_scenarios=p["n_scenarios_plotted"]), MAGNITUDE_FIGURE)
 
 
 TOOL = Tool(
@@ -157,6 +157,13 @@ TOOL = Tool(
         Param("map_scale_denominator", float, None,
               "Scale 1:N of the source map of the traces; uncertainty = 0.5 mm at map scale (1:25000 -> 12.5 m).",
               min=0.0, min_exclusive=True, nullable=True),
+        Param("n_map_labels", int, 15,
+              "Screened faults labelled on the map, the largest magnitude first; a label that would overlap "
+              "another or leave the map is skipped (0: no labels).",
+              min=0, max=60),
+        Param("n_scenarios_plotted", int, 25,
+              "Rupture scenarios in the magnitude figure, the largest preferred magnitude first.",
+              min=1, max=60),
     ),
     layers=("faults", "rupture_scenarios", "rupture_zones"),
     figures=(MAP_FIGURE, MAGNITUDE_FIGURE),
