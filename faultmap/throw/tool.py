@@ -121,11 +121,16 @@ def run(ctx, p: dict) -> None:
         from faultmap.throw.figures import system_profiles, throw_map, throw_profiles
 
         elev, t = read_overview(dem, max_pixels=1_000_000)
-        ctx.save_figure(throw_map(res.faults, elevation=elev, transform=t), "throw_map.png")
+        ctx.save_figure(
+            throw_map(res.faults, elevation=elev, transform=t, n_labels=p["n_map_labels"]), "throw_map.png"
+        )
         ctx.save_figure(
             throw_profiles(res.faults, res.stations, n_largest=p["n_profile_figures"]), "throw_profiles.png"
         )
-        ctx.save_figure(system_profiles(res.faults, res.stations, res.linkage_zones), "throw_systems.png")
+        ctx.save_figure(
+            system_profiles(res.faults, res.stations, res.linkage_zones, max_systems=p["n_system_figures"]),
+            "throw_systems.png",
+        )
 
 
 def _relink(ctx, res, params) -> None:
@@ -286,9 +291,28 @@ TOOL = Tool(
             "n_profile_figures",
             int,
             6,
-            "Largest faults drawn in the along-strike profile figure.",
+            "Largest faults drawn in the along-strike profile figure (one panel each; the figure says how many "
+            "were left out).",
             min=1,
-            max=48,
+            max=24,
+        ),
+        Param(
+            "n_system_figures",
+            int,
+            6,
+            "Largest linked systems (by summed maximum throw) drawn in the system profile figure (one panel each; "
+            "the figure says how many were left out).",
+            min=1,
+            max=24,
+        ),
+        Param(
+            "n_map_labels",
+            int,
+            8,
+            "Largest faults labelled with their id on the throw map; a label that would overlap another or leave "
+            "the map is skipped (0: no labels).",
+            min=0,
+            max=60,
         ),
     ),
     layers=("faults", "throw_stations", "linkage_zones"),
