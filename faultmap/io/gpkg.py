@@ -11,7 +11,10 @@ from __future__ import annotations
 
 import os
 import re
+import shutil
 import sqlite3
+import tempfile
+import time
 import uuid
 from pathlib import Path
 
@@ -34,24 +37,120 @@ _SQL_RESERVED = {
 }  # fmt: skip
 
 
-def check_target(target, *, overwrite: bool) -> Path:
+#: Free space an output folder must have before a run starts, bytes (our margin for the GeoPackage,
+#: its journal and the figures of a regional run).
+MIN_FREE_BYTES = 64 * 1024**2
+
+
+def temporary_name(target: Path, kind: str, suffix: str) -> Path:
+    """Hidden name beside ``target`` for a file or folder being written, carrying this process's id.
+
+    The id lets a later run tell the left-overs of a killed run (its process is gone) from the files of
+    a run still writing; see :func:`remove_stale_temporaries`.
+    """
+    return target.parent / f".{target.stem}.{kind}.{os.getpid()}-{uuid.uuid4().hex[:8]}.tmp{suffix}"
+
+
+def _pid_alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def remove_stale_temporaries(target) -> list[Path]:
+    """Remove what killed runs left beside ``target``: hidden temporary GeoPackages, journals, figure folders.
+
+    A temporary is stale when the process whose id its name carries is gone (names without an id,
+    from older versions, when older than an hour). Files of a run still writing are left alone.
+
+    Returns
+    -------
+    list of pathlib.Path
+        What was removed.
+    """
+    target = Path(target)
+    removed = []
+    if not target.parent.is_dir():
+        return removed
+    for q in sorted(target.parent.glob(f".{target.stem}.*.tmp*")):
+        if not q.exists() and not q.is_symlink():
+            continue  # went with its main file
+        sidecar = q.name.endswith(("-journal", "-wal", "-shm"))
+        if sidecar and Path(str(q).rsplit("-", 1)[0]).exists():
+            continue  # goes (or stays) with its main file
+        tag = q.name[len(target.stem) + 2:].split(".tmp", 1)[0]  # "gpkg.PID-HEX", "figures.PID-HEX", or "HEX"
+        pid = tag.rsplit(".", 1)[-1].split("-", 1)[0]
+        if "-" in tag and pid.isdigit():
+            stale = not _pid_alive(int(pid))
+        else:
+            try:
+                stale = time.time() - q.stat().st_mtime > 3600
+            except OSError:
+                continue
+        if stale:
+            if q.is_dir():
+                shutil.rmtree(q, ignore_errors=True)
+            else:
+                _remove(q)
+            removed.append(q)
+    return removed
+
+
+def check_target(target, *, overwrite: bool, inputs=()) -> Path:
     """Check that ``target`` can be written before any work is done.
+
+    Parameters
+    ----------
+    target : str or pathlib.Path
+        The ``.gpkg`` a run will write.
+    overwrite : bool
+        Whether an existing file may be replaced.
+    inputs : iterable of path, optional
+        The run's input files: the output may never be one of them (not even with ``overwrite``).
 
     Raises
     ------
     OutputError
-        When the folder is missing, the name is not ``.gpkg``, or the file
-        exists and ``overwrite`` is false.
+        When the folder is missing or not writable, has less than :data:`MIN_FREE_BYTES` free, the
+        name is not ``.gpkg``, the file is one of the inputs, or it exists and ``overwrite`` is false.
     """
     p = Path(target)
     if p.suffix.lower() != ".gpkg":
         raise OutputError(f"{p}: the output must be a GeoPackage file ending in .gpkg.")
     if not p.parent.exists():
         raise OutputError(f"{p}: output folder {p.parent} does not exist; create it first.")
-    if p.exists() and not overwrite:
-        raise OutputError(f"{p}: exists already; use --overwrite (or overwrite = true) to replace it.")
+    for src in inputs:
+        if src is None or "://" in str(src) or str(src).startswith("/vsi"):
+            continue
+        q = Path(src)
+        same = q.exists() and p.exists() and os.path.samefile(p, q)
+        if same or q.resolve() == p.resolve():
+            raise OutputError(
+                f"{p}: is an input of this run ({q}); name another .gpkg so that the input is never overwritten."
+            )
     if p.exists() and p.is_dir():
         raise OutputError(f"{p}: is a folder; name a .gpkg file.")
+    if p.exists() and not overwrite:
+        raise OutputError(f"{p}: exists already; use --overwrite (or overwrite = true) to replace it.")
+    remove_stale_temporaries(p)
+    try:
+        fd, probe = tempfile.mkstemp(prefix=f".{p.stem}.probe.", suffix=".tmp", dir=p.parent)
+        os.close(fd)
+        os.unlink(probe)
+    except OSError as exc:
+        raise OutputError(
+            f"{p}: cannot write in folder {p.parent} ({exc.strerror}); choose a folder you may write to."
+        ) from None
+    free = shutil.disk_usage(p.parent).free
+    if free < MIN_FREE_BYTES:
+        raise OutputError(
+            f"{p}: only {free / 1024**2:.0f} MB free in {p.parent} (at least {MIN_FREE_BYTES // 1024**2} MB "
+            "needed); free some space or choose another folder."
+        )
     return p
 
 
@@ -202,7 +301,8 @@ def write_gpkg(target, layers: dict, *, crs, overwrite: bool = False) -> Path:
     import pyogrio
 
     target = check_target(target, overwrite=overwrite)
-    tmp = target.parent / f".{target.stem}.{uuid.uuid4().hex[:8]}.tmp.gpkg"
+    tmp = temporary_name(target, "gpkg", ".gpkg")
+    existed = target.exists()
     try:
         for name, df in layers.items():
             if df is None:
@@ -236,7 +336,8 @@ def write_gpkg(target, layers: dict, *, crs, overwrite: bool = False) -> Path:
         _remove(tmp)
         msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         hint = " (if the file is open in a GIS, close it)" if "transaction" in msg.lower() else ""
-        raise OutputError(f"{target}: writing failed: {msg}{hint}; the earlier result is unchanged.") from exc
+        kept = "the earlier result is unchanged" if existed else "nothing was written"
+        raise OutputError(f"{target}: writing failed: {msg}{hint}; {kept}.") from exc
     return target
 
 
