@@ -64,6 +64,15 @@ def run(ctx, p: dict) -> None:
     res = measure_throw(faults, dem, params=params, mapper=mapper, progress=progress, min_batches=min_batches)
     for w in res.warnings:
         ctx.warn(w)
+    status = res.stations["status"].to_numpy()
+    if len(status) and not (status == "ok").any():
+        kinds, counts = np.unique(status, return_counts=True)
+        raise InputError(
+            f"{dem.path}: no throw could be measured at any of {len(status)} stations "
+            f"({', '.join(f'{c} {k}' for k, c in zip(kinds, counts, strict=True))}; DEM {dem.width} x {dem.height} "
+            f"pixels of {dem.pixel_size:g} m); give a DEM that covers the traces with at least "
+            f"{2 * params.min_samples_per_side + 1} pixels across each scarp profile."
+        )
     _relink(ctx, res, params)
     # what was used where the user left a parameter unset
     px = dem.pixel_size
