@@ -2,6 +2,9 @@
 
 Functions return :class:`matplotlib.figure.Figure` objects built without
 pyplot global state; callers save them (``fig.savefig(path, dpi=170)``).
+They stay bounded whatever the number of faults (:mod:`faultmap.figure_kit`):
+each point set is one scatter call, only a few outliers are labelled and the
+figures say what was left out.
 """
 
 from __future__ import annotations
@@ -11,6 +14,7 @@ from collections.abc import Mapping, Sequence
 import numpy as np
 from matplotlib.figure import Figure
 
+from faultmap.figure_kit import bounded, place_labels, shown_note, thousands
 from faultmap.population.linefit import LineFit
 from faultmap.population.powerlaw_fit import PowerLawFit
 from faultmap.population.references import REFERENCE_RANGES, ReferenceRange
@@ -46,6 +50,7 @@ def dl_figure(
     band_model: str | None = None,
     references: Sequence[ReferenceRange] = REFERENCE_RANGES,
     label_outliers: bool = True,
+    max_labels: int = 12,
     figsize: tuple[float, float] = (8.0, 8.2),
 ) -> Figure:
     """Log-log displacement-length plot with fits, band, outliers, references.
@@ -61,7 +66,11 @@ def dl_figure(
         Published D/L ratio references drawn as lines labelled with their
         sources (ratio ranges as a shaded envelope).
     label_outliers : bool
-        Write the unit id beside each flagged outlier.
+        Write the unit id beside flagged outliers: at most ``max_labels``,
+        the longest first, skipping any label that would overlap another,
+        the legend or the frame; the figure says how many were labelled.
+    max_labels : int
+        Most outlier labels.
     figsize : tuple of float
         Inches.
 
@@ -147,20 +156,23 @@ def dl_figure(
         st = _MODEL_STYLE.get(name, dict(color="C3", ls="-"))
         ax.plot(grid, f.predict(grid), color=st["color"], ls=st["ls"], lw=1.8, label=_fit_label(name, f))
 
-    # data
-    ax.scatter(L[used], D[used], s=22, c="#333333", zorder=3, label=f"{unit}s used (N = {int(used.sum())})")
+    # data: one scatter call per kind of point; markers shrink as points crowd
+    n_pts = int(ok.sum())
+    ms = 1.0 if n_pts <= 300 else max(0.2, float(np.sqrt(300.0 / n_pts)))
+    ax.scatter(L[used], D[used], s=22 * ms, c="#333333", lw=0, zorder=3,
+               label=f"{unit}s used (N = {thousands(int(used.sum()))})")
     if cens.any():
         ax.scatter(
             L[cens],
             D[cens],
-            s=26,
+            s=26 * ms,
             facecolors="none",
             edgecolors="#555555",
             zorder=3,
-            label=f"censored, not fitted (N = {int(cens.sum())})",
+            label=f"censored, not fitted (N = {thousands(int(cens.sum()))})",
         )
     if other.any():
-        ax.scatter(L[other], D[other], s=18, marker="x", c="#555555", zorder=3, label="excluded")
+        ax.scatter(L[other], D[other], s=18 * ms, marker="x", c="#555555", zorder=3, label="excluded")
     under = ok & (flag == "under_displaced")
     over = ok & (flag == "over_displaced")
     for sel, colour, what in ((under, "#1565c0", "under"), (over, "#c62828", "over")):
@@ -168,22 +180,12 @@ def dl_figure(
             ax.scatter(
                 L[sel],
                 D[sel],
-                s=80,
+                s=80 * max(ms, 0.4),
                 facecolors="none",
                 edgecolors=colour,
-                lw=1.6,
+                lw=1.6 * max(ms, 0.5),
                 zorder=4,
-                label=f"{what}-displaced outlier",
-            )
-    if label_outliers:
-        for j, i in enumerate(np.flatnonzero(under | over)):
-            dy = 5 if j % 2 == 0 else -11  # alternate to limit overlaps
-            ax.annotate(
-                str(pop["unit_id"].iloc[i]),
-                (L[i], D[i]),
-                xytext=(5, dy),
-                textcoords="offset points",
-                fontsize=8,
+                label=f"{what}-displaced outlier (N = {thousands(int(sel.sum()))})",
             )
 
     ax.set_xscale("log")
@@ -212,7 +214,16 @@ def dl_figure(
         )
     ax.legend(fontsize=7.5, loc="upper center", bbox_to_anchor=(0.5, -0.09), ncol=2, framealpha=0.9)
     fig.tight_layout()
-    return fig
+    flagged = np.flatnonzero(under | over)
+    if label_outliers and max_labels > 0 and flagged.size:
+        # the longest outliers first; a label that would overlap is skipped
+        placed = place_labels(ax, np.c_[L[flagged], D[flagged]], [str(u) for u in pop["unit_id"].to_numpy()[flagged]],
+                              priority=L[flagged], max_labels=max_labels, fontsize=7.5)
+        if len(placed) < flagged.size:
+            ax.text(0.01, 0.99, "ids: " + shown_note(len(placed), int(flagged.size), "outliers",
+                                                     "the longest, without overlaps").replace(" shown", " labelled"),
+                    transform=ax.transAxes, ha="left", va="top", fontsize=7.5, color="#555555")
+    return bounded(fig)
 
 
 def size_figure(
@@ -221,6 +232,7 @@ def size_figure(
     detection_limits: Mapping[str, float | None] | None = None,
     alternatives: bool = True,
     figsize: tuple[float, float] | None = None,
+    max_points: int = 2000,
 ) -> Figure:
     """Cumulative frequency (CCDF) plots with the fitted power laws.
 
@@ -234,6 +246,10 @@ def size_figure(
         Also draw the fitted exponential and log-normal tails.
     figsize : tuple of float, optional
         Inches; default 5.2 per panel by 4.6.
+    max_points : int
+        Most data points drawn per panel: beyond it the points are thinned
+        evenly in log rank, keeping every point of the upper tail (the
+        legend says how many were drawn).
 
     Returns
     -------
@@ -248,7 +264,7 @@ def size_figure(
     detection_limits = dict(detection_limits or {})
     names = list(fits)
     k = max(1, len(names))
-    fig = Figure(figsize=figsize or (5.2 * k, 4.6), dpi=170)
+    fig = Figure(figsize=figsize or (min(5.2 * k, 22.0), 4.6), dpi=170)
     for i, var in enumerate(names):
         f = fits[var]
         ax = fig.add_subplot(1, k, i + 1)
@@ -258,7 +274,10 @@ def size_figure(
             ax.text(0.5, 0.5, "no data", ha="center", va="center", transform=ax.transAxes)
             ax.set_axis_off()
             continue
-        ax.loglog(xs, p, "o", ms=3.5, mfc="none", mec="#333333", label=f"data (N = {f.n})")
+        keep = _thin_ccdf(xs.size, max_points)
+        drawn = (f"; {thousands(keep.size)} drawn, every point of the upper tail" if keep.size < xs.size else "")
+        ax.loglog(xs[keep], p[keep], "o", ms=3.5, mfc="none", mec="#333333",
+                  label=f"data (N = {thousands(f.n)}{drawn})")
         if f.fitted:
             g = np.logspace(np.log10(f.x_min), np.log10(xs.max()), 100)
             ax.loglog(
@@ -312,7 +331,19 @@ def size_figure(
         ax.legend(fontsize=7, loc="lower left", framealpha=0.85)
     fig.suptitle("Size distributions (LR > 0 favours the power law; Clauset et al. 2009)", fontsize=10)
     fig.tight_layout()
-    return fig
+    return bounded(fig)
+
+
+def _thin_ccdf(n: int, max_points: int) -> np.ndarray:
+    """Pick at most about ``max_points`` of ``n`` sorted CCDF points, even in log rank from the top.
+
+    The largest values (rank 1, 2, 3... from the top) are all kept until the log spacing
+    exceeds one rank; the crowded body is thinned.
+    """
+    if n <= max_points:
+        return np.arange(n)
+    rank = np.unique(np.round(np.geomspace(1, n, max_points)).astype(np.int64))
+    return np.sort(n - rank)
 
 
 def _label_125(value: float, _pos=None) -> str:

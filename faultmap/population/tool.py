@@ -106,7 +106,7 @@ def run(ctx, p: dict) -> None:
     if ctx.figures_enabled:
         from faultmap.population.figures import dl_figure, size_figure
 
-        ctx.save_figure(dl_figure(res), "scaling_dl.png")
+        ctx.save_figure(dl_figure(res, max_labels=p["n_outlier_labels"]), "scaling_dl.png")
         ctx.save_figure(size_figure(sizes.fits, detection_limits=limits), "scaling_sizes.png")
 
 
@@ -236,6 +236,15 @@ TOOL = Tool(
             200,
             "Most x_min candidates tried (evenly spaced in rank among the distinct values).",
             min=5,
+        ),
+        Param(
+            "n_outlier_labels",
+            int,
+            12,
+            "D-L outliers labelled with their id in the scaling figure, the longest first; a label that would "
+            "overlap another or leave the plot is skipped (0: no labels).",
+            min=0,
+            max=60,
         ),
     ),
     layers=("faults", "scaling"),
