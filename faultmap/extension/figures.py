@@ -1,7 +1,9 @@
 """Figures for extension and strain: a map of extension directions and per-transect extension.
 
 Functions return :class:`matplotlib.figure.Figure` objects built without
-pyplot global state; callers save them (150-200 dpi PNG).
+pyplot global state; callers save them (150-200 dpi PNG). They stay bounded
+whatever the number of faults, cells or transects (:mod:`faultmap.figure_kit`):
+each kind of line is one collection.
 """
 
 from __future__ import annotations
@@ -14,6 +16,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from faultmap.errors import ParameterError
+from faultmap.figure_kit import bounded, line_parts, trace_width
 
 __all__ = ["extension_map_figure", "transect_extension_figure"]
 
@@ -65,12 +68,12 @@ def extension_map_figure(
         ax.imshow(hillshade, cmap="gray", extent=hillshade_extent, origin="upper", interpolation="nearest", zorder=0)
     handles = []
     if faults is not None and len(faults):
-        segs = [np.asarray(g.coords)[:, :2] for g in faults.geometry.values if g is not None and not g.is_empty
-                and g.geom_type == "LineString"]
-        ax.add_collection(LineCollection(segs, colors="black", linewidths=0.8, zorder=2))
+        segs, _ = line_parts(faults.geometry.values)
+        lw = trace_width(len(faults), widest=0.8, narrowest=0.25)
+        ax.add_collection(LineCollection(segs, colors="black", linewidths=lw, zorder=2))
         handles.append(Line2D([], [], color="black", lw=0.8, label="fault trace"))
     if transects is not None and len(transects):
-        segs = [np.asarray(g.coords)[:, :2] for g in transects.geometry.values if g is not None and not g.is_empty]
+        segs, _ = line_parts(transects.geometry.values)
         ax.add_collection(LineCollection(segs, colors="tab:blue", linewidths=0.8, linestyles="dashed", zorder=2))
         handles.append(Line2D([], [], color="tab:blue", lw=0.8, ls="--", label="transect"))
 
@@ -126,7 +129,7 @@ def extension_map_figure(
         ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.1), ncol=min(3, len(handles)),
                   fontsize=_FONT - 1, frameon=False)
     ax.set_title(title or "Horizontal extension directions (Kostrov summation)", fontsize=_FONT + 1)
-    return fig
+    return bounded(fig)
 
 
 def transect_extension_figure(transects: gpd.GeoDataFrame, *, title: str | None = None) -> Figure:
@@ -203,4 +206,4 @@ def transect_extension_figure(transects: gpd.GeoDataFrame, *, title: str | None 
         if len(x):
             a.legend(fontsize=_FONT - 1, loc="best")
     ax.set_title(title or "Extension along transects (heave summation)", fontsize=_FONT + 1)
-    return fig
+    return bounded(fig)
