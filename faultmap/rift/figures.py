@@ -2,6 +2,9 @@
 
 Functions return :class:`matplotlib.figure.Figure` objects built without
 pyplot global state; callers save them (``fig.savefig(path, dpi=170)``).
+They stay bounded whatever the number of faults or sections
+(:mod:`faultmap.figure_kit`): traces are one collection, the map is in metres
+like the other maps, and the swath figure says how many sections it leaves out.
 """
 
 from __future__ import annotations
@@ -11,23 +14,19 @@ from collections.abc import Sequence
 import geopandas as gpd
 import numpy as np
 import pandas as pd
-import shapely
 from matplotlib.collections import LineCollection
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
+
+from faultmap.figure_kit import bounded, line_parts, panel_grid, shown_note, trace_width
 
 __all__ = ["rift_map_figure", "width_along_axis_figure", "swath_figure", "subsidence_figure"]
 
 _CLASS_COLOURS = {"narrow": "#1f4e9c", "wide": "#c25b00", "indeterminate": "#7a7a7a"}
 
 
-def _lines(geoms: Sequence, scale: float = 1000.0) -> list[np.ndarray]:
-    out = []
-    for g in shapely.get_parts(np.asarray(list(geoms), dtype=object)):
-        if g is None or g.is_empty:
-            continue
-        out.append(np.asarray(g.coords)[:, :2] / scale)
-    return out
+def _lines(geoms: Sequence, scale: float = 1.0) -> list[np.ndarray]:
+    return line_parts(np.asarray(list(geoms), dtype=object), scale=scale)[0]
 
 
 def rift_map_figure(
@@ -63,13 +62,11 @@ def rift_map_figure(
     ax = fig.add_subplot(1, 1, 1)
     thr = np.asarray(faults["max_throw_m"], dtype=float) if "max_throw_m" in faults else np.full(len(faults), np.nan)
     tmax = np.nanmax(thr) if np.any(np.isfinite(thr)) else 1.0
-    lw = np.where(np.isfinite(thr), 0.5 + 2.0 * thr / tmax, 0.8)
-    segs, widths = [], []
-    for g, w in zip(faults.geometry.values, lw, strict=True):
-        parts = _lines([g])
-        segs.extend(parts)
-        widths.extend([w] * len(parts))
-    ax.add_collection(LineCollection(segs, colors="0.25", linewidths=widths, zorder=2))
+    # width grows with throw; thinner overall as traces crowd
+    top = trace_width(len(faults), widest=2.5, narrowest=0.6)
+    lw = np.where(np.isfinite(thr), top * (0.2 + 0.8 * thr / tmax), 0.32 * top)
+    segs, owner = line_parts(faults.geometry.values)
+    ax.add_collection(LineCollection(segs, colors="0.25", linewidths=lw[owner], zorder=2))
     secs = _lines(sections.geometry.values)
     ax.add_collection(LineCollection(secs, colors="0.7", linewidths=0.6, linestyles=":", zorder=1))
     # measured widths
@@ -88,10 +85,9 @@ def rift_map_figure(
                 [np.column_stack([cx[m] + a0[m] * nx[m], cy[m] + a0[m] * ny[m]]),
                  np.column_stack([cx[m] + a1[m] * nx[m], cy[m] + a1[m] * ny[m]])],
                 axis=1,
-            ) / 1000.0
+            )
             ax.add_collection(LineCollection(seg, colors=col, linewidths=3.0, alpha=0.55, zorder=3))
-    for xy in _lines(axis.geometry.values):
-        ax.plot(xy[:, 0], xy[:, 1], color="#b00020", lw=2.2, zorder=4)
+    ax.add_collection(LineCollection(_lines(axis.geometry.values), colors="#b00020", linewidths=2.2, zorder=4))
     handles = [
         Line2D([], [], color="0.25", lw=1.5, label="fault trace (width ~ max throw)"),
         Line2D([], [], color="#b00020", lw=2.2, label="rift axis"),
@@ -101,11 +97,14 @@ def rift_map_figure(
         for c, col in _CLASS_COLOURS.items()
         if np.any(ok & (cls == c))
     ]
-    ax.legend(handles=handles, loc="best", fontsize=8, framealpha=0.9)
+    ax.legend(handles=handles, loc="upper right", fontsize=8, framealpha=0.9)
     ax.autoscale_view()
     ax.set_aspect("equal", adjustable="datalim")
-    ax.set_xlabel("Easting (km)")
-    ax.set_ylabel("Northing (km)")
+    ax.set_xlabel("Easting (m)")
+    ax.set_ylabel("Northing (m)")
+    ax.ticklabel_format(style="plain", useOffset=False)
+    for lab in ax.get_xticklabels():
+        lab.set_rotation(30)
     title = "Rift axis, sections and widths"
     if summary is not None and len(summary):
         s = summary.iloc[0]
@@ -113,7 +112,7 @@ def rift_map_figure(
     ax.set_title(title, fontsize=11)
     ax.grid(True, lw=0.3, alpha=0.5)
     fig.tight_layout()
-    return fig
+    return bounded(fig)
 
 
 def width_along_axis_figure(
@@ -173,7 +172,7 @@ def width_along_axis_figure(
     ax.grid(True, lw=0.3, alpha=0.5)
     ax.legend(fontsize=8, loc="best")
     fig.tight_layout()
-    return fig
+    return bounded(fig)
 
 
 def swath_figure(
@@ -196,9 +195,10 @@ def swath_figure(
     sections : DataFrame, optional
         ``rift_sections``: the outermost counted faults are marked.
     section_ids : sequence of int, optional
-        Sections to draw; default up to ``max_panels`` evenly spread.
+        Sections to draw (at most ``max_panels`` of them); default up to
+        ``max_panels`` evenly spread along the axis.
     max_panels : int
-        Most panels drawn.
+        Most panels drawn; the title says how many sections were left out.
     figsize : tuple of float, optional
         Inches; default grows with the number of panels.
 
@@ -207,13 +207,17 @@ def swath_figure(
     matplotlib.figure.Figure
     """
     ids = np.asarray(sorted(profiles["section_id"].unique()))
+    n_all = len(ids)
+    max_panels = max(1, int(max_panels))
     if section_ids is None:
         if len(ids) > max_panels:
             ids = ids[np.unique(np.linspace(0, len(ids) - 1, max_panels).round().astype(int))]
+        by = "evenly spaced along the axis"
     else:
-        ids = np.asarray(list(section_ids))
+        ids = np.asarray(list(section_ids))[:max_panels]
+        by = "the first of those asked for"
     n = max(len(ids), 1)
-    fig = Figure(figsize=figsize or (8.5, 2.3 * n + 0.6), dpi=170)
+    fig = Figure(figsize=figsize or panel_grid(n, max_cols=1, panel_w=8.5, panel_h=2.3, extra_h=0.6)[2], dpi=170)
     axes = [fig.add_subplot(n, 1, i + 1) for i in range(n)]
     for ax, sid in zip(axes, ids, strict=False):
         p = profiles[profiles["section_id"] == sid].sort_values("across_m")
@@ -253,11 +257,12 @@ def swath_figure(
                 handles.append(h)
                 labels.append(lab)
     h = fig.get_figheight()
-    fig.suptitle("Swath profiles across the rift axis", fontsize=11, y=1.0 - 0.08 / h, va="top")
+    note = shown_note(len(ids), n_all, "sections", by)
+    fig.suptitle(f"Swath profiles across the rift axis ({note})", fontsize=11, y=1.0 - 0.08 / h, va="top")
     fig.legend(handles, labels, loc="upper center", ncol=min(len(labels), 5), fontsize=8,
                bbox_to_anchor=(0.5, 1.0 - 0.38 / h), frameon=False)
     fig.tight_layout(rect=(0, 0, 1, 1.0 - 0.55 / h))
-    return fig
+    return bounded(fig)
 
 
 def subsidence_figure(table: pd.DataFrame, *, figsize: tuple[float, float] = (7.5, 5.0)) -> Figure:
@@ -294,4 +299,4 @@ def subsidence_figure(table: pd.DataFrame, *, figsize: tuple[float, float] = (7.
     ax.grid(True, lw=0.3, alpha=0.5)
     ax.legend(fontsize=8, loc="upper right")
     fig.tight_layout()
-    return fig
+    return bounded(fig)

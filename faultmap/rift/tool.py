@@ -188,7 +188,10 @@ def run(ctx, p: dict) -> None:
         ctx.save_figure(rift_map_figure(faults, axis, sections, summary=summary), MAP_FIGURE)
         ctx.save_figure(width_along_axis_figure(sections, summary=summary, topography=features), ALONG_FIGURE)
         if profiles is not None and np.any(profiles["n_valid"] > 0):
-            ctx.save_figure(swath_figure(profiles, features=features, sections=sections), SWATH_FIGURE)
+            ctx.save_figure(
+                swath_figure(profiles, features=features, sections=sections, max_panels=p["n_swath_figures"]),
+                SWATH_FIGURE,
+            )
         if table is not None:
             ctx.save_figure(subsidence_figure(table), SUBSIDENCE_FIGURE)
 
@@ -252,6 +255,9 @@ TOOL = Tool(
               "the profile length.", unit="m", min=0.0, min_exclusive=True, nullable=True),
         Param("swath_max_samples", int, 2_000_000,
               "Most DEM samples for all swaths together (the sampling is coarsened to fit).", min=1000),
+        Param("n_swath_figures", int, 6,
+              "Swath profiles drawn (one panel each, evenly spread along the axis; the figure says how many "
+              "sections were left out).", min=1, max=16),
     ),
     layers=("rift_axis", "rift_sections", "rift_summary", "rift_swath", "subsidence"),
     figures=(MAP_FIGURE, ALONG_FIGURE, SWATH_FIGURE, SUBSIDENCE_FIGURE),
