@@ -12,6 +12,7 @@ pixel centre, ``(x, y) = transform * (j + 0.5, i + 0.5)``.
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -46,6 +47,8 @@ class Dem:
         Multiplier that turns stored elevations into metres (0.3048 for feet).
     band : int
         Band read (1-based).
+    dtype : str
+        How the file stores elevations (``float32``, ``int16``...).
     """
 
     path: Path
@@ -58,6 +61,7 @@ class Dem:
     band: int = 1
     block_shape: tuple[int, int] = (256, 256)
     _extra_voids: tuple[float, ...] = field(default=(), repr=False)
+    dtype: str = "float32"
 
     # ------------------------------------------------------------------ geometry
     @property
@@ -120,6 +124,8 @@ class Dem:
             mask |= arr == v
         mask |= ~np.isfinite(arr)
         arr[mask] = np.nan
+        if self.nodata is None:
+            _check_plausible(arr, self)
         if self.metres_per_unit != 1.0:
             arr *= self.metres_per_unit
         return arr
@@ -271,6 +277,7 @@ def open_dem(path, *, nodata: float | None = None, metres_per_unit: float = 1.0,
             transform = src.transform
             width, height = src.width, src.height
             block = tuple(src.block_shapes[band - 1])
+            dtype = src.dtypes[band - 1]
     except rasterio.errors.RasterioIOError as exc:
         raise InputFileError(f"{p}: not a raster GDAL can read ({str(exc).splitlines()[0]}).") from exc
     if not (metres_per_unit > 0 and math.isfinite(metres_per_unit)):
@@ -300,6 +307,7 @@ def open_dem(path, *, nodata: float | None = None, metres_per_unit: float = 1.0,
         band=int(band),
         block_shape=block,
         _extra_voids=extra,
+        dtype=str(dtype),
     )
 
 
@@ -389,6 +397,8 @@ def read_window_array(
     ):
         # the common case (a float32 GeoTIFF): voids and +-inf to NaN in one compiled pass
         kernels.voids_to_nan(raw, sorted(set(voids)))
+        if dem.nodata is None:
+            _check_plausible(raw, dem)
         if dem.metres_per_unit != 1.0:
             raw *= np.float32(dem.metres_per_unit)
         return raw, win_transform(w, dem.transform), (rows.start, cols.start)
@@ -417,9 +427,30 @@ def read_window_array(
         arr = arr.copy()
     if bad is not None and bad.any():
         np.putmask(arr, bad, np.nan)
+    if dem.nodata is None:
+        _check_plausible(arr, dem)
     if dem.metres_per_unit != 1.0:
         arr *= arr.dtype.type(dem.metres_per_unit)
     return arr, win_transform(w, dem.transform), (rows.start, cols.start)
+
+
+#: Largest elevation magnitude taken as real, in the file's units (|z| beyond 100 km is a void marker).
+PLAUSIBLE_ABS_Z = 1e5
+
+
+def _check_plausible(arr: np.ndarray, dem: Dem) -> None:
+    """Refuse elevations no terrain has, in a DEM that declares no void value (e.g. undeclared 1e30)."""
+    if arr.size == 0:
+        return
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # an all-void window
+        lo, hi = np.nanmin(arr), np.nanmax(arr)  # two passes, no copy
+    if max(abs(lo), abs(hi)) > PLAUSIBLE_ABS_Z:
+        value = hi if abs(hi) >= abs(lo) else lo
+        raise InputError(
+            f"{dem.path}: elevation {value:g} found, which no terrain has; the file declares no void value: "
+            "name it with --dem-nodata VALUE (or dem_nodata in the project file)."
+        )
 
 
 def read_overview(dem: Dem, *, max_pixels: int = 2_000_000, bounds=None):

@@ -64,8 +64,15 @@ def run(ctx, p: dict) -> None:
     res = measure_throw(faults, dem, params=params, mapper=mapper, progress=progress, min_batches=min_batches)
     for w in res.warnings:
         ctx.warn(w)
+    if np.issubdtype(np.dtype(dem.dtype), np.integer):
+        ctx.warn(
+            f"{dem.path}: elevations are stored as whole numbers ({dem.dtype}); vertical separations are "
+            "quantised to the DEM's unit, which biases small throws: use a floating-point DEM for small scarps."
+        )
     status = res.stations["status"].to_numpy()
-    if len(status) and not (status == "ok").any():
+    # the DEM served no station at all (too small, elsewhere, or void): nothing to report. Stations cut
+    # short by neighbouring traces or with poor fits are results (their statuses say why) and are written.
+    if len(status) and np.isin(status, ("outside", "nodata")).all():
         kinds, counts = np.unique(status, return_counts=True)
         raise InputError(
             f"{dem.path}: no throw could be measured at any of {len(status)} stations "
