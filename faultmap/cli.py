@@ -76,10 +76,21 @@ def _param_help(p: Param) -> str:
     return f"{p.help}{unit} Default: {default}. Allowed: {p.describe_range()}."
 
 
+_METAVARS = {float: "NUMBER", int: "INTEGER", str: "TEXT"}
+
+
 def _param_option(p: Param) -> click.Option:
     if p.type is bool:
         return click.Option([f"{p.option}/--no-{p.option[2:]}", p.name], default=None, help=_param_help(p))
-    return click.Option([p.option, p.name], default=None, type=str, help=_param_help(p))
+    # parsed as text so that the registry checks the value and says what is allowed in its own words
+    metavar = "[" + "|".join(p.choices) + "]" if p.choices else _METAVARS.get(p.type, "TEXT")
+    return click.Option([p.option, p.name], default=None, type=str, metavar=metavar, help=_param_help(p))
+
+
+def _common_options(f):
+    """-v and -q, accepted after a sub-command too (``faultmap run FILE -q``)."""
+    f = click.option("-v", "--verbose", "verbose_", is_flag=True, help="Show tracebacks for errors.")(f)
+    return click.option("-q", "--quiet", "quiet_", is_flag=True, help="No progress bars or notices.")(f)
 
 
 def _parse_fields(items) -> dict:
@@ -203,12 +214,19 @@ def build_cli() -> click.Group:
     @cli.command("run")
     @click.argument("project", type=click.Path(dir_okay=False))
     @click.option("--overwrite", is_flag=True, default=None, help="Replace an existing output.")
-    def run_cmd(project, overwrite):
+    @click.option("--workers", type=int, help="Run on a local Dask cluster with N workers (faultmap[dask]).")
+    @click.option("--scheduler", help="Run on an existing Dask scheduler at ADDRESS (faultmap[dask]).")
+    @click.option("--threads", type=int, help="In-process threads (default: one per core, at most 4).")
+    @_common_options
+    def run_cmd(project, overwrite, workers, scheduler, threads, verbose_, quiet_):
         """Run the tools described in a project (TOML) file."""
         from faultmap.project import run_project
 
+        state.verbose, state.quiet = state.verbose or verbose_, state.quiet or quiet_
+        engine = {"workers": workers, "scheduler": scheduler, "threads": threads}
         try:
-            res = run_project(project, overwrite=overwrite or None, quiet=state.quiet, tools=tools)
+            res = run_project(project, overwrite=overwrite or None, quiet=state.quiet, tools=tools,
+                              engine_options=engine)
         except Exception as exc:  # noqa: BLE001
             _fail(exc, state)
         _report(res, state)
@@ -217,9 +235,12 @@ def build_cli() -> click.Group:
     @click.argument("folder", required=False, default="faultmap_demo", type=click.Path(file_okay=False))
     @click.option("--scale", type=float, default=1.0, show_default=True,
                   help="Pixel-count scale of the demo DEM (below 1 for a quicker, coarser run).")
-    def demo_cmd(folder, scale):
+    @_common_options
+    def demo_cmd(folder, scale, verbose_, quiet_):
         """Write the fictional demo area into FOLDER and run every available tool on it."""
         from faultmap.project import run_project
+
+        state.verbose, state.quiet = state.verbose or verbose_, state.quiet or quiet_
 
         try:
             from demo_area import write_demo_area

@@ -131,7 +131,10 @@ def read_project(path, *, tools: dict | None = None) -> dict:
     return {"steps": steps, "inputs": inputs, "output": output, "fields": fields, "engine": engine, "params": params}
 
 
-def run_project(path, *, overwrite: bool | None = None, quiet: bool = False, tools: dict | None = None, echo=None) -> RunResult:
+def run_project(
+    path, *, overwrite: bool | None = None, quiet: bool = False, tools: dict | None = None, echo=None,
+    engine_options: dict | None = None,
+) -> RunResult:
     """Run a project file: its steps (or every available tool) in dependency order.
 
     Parameters
@@ -142,6 +145,9 @@ def run_project(path, *, overwrite: bool | None = None, quiet: bool = False, too
         Overrides ``[output] overwrite``.
     quiet : bool
         No progress output.
+    engine_options : dict, optional
+        ``workers``, ``scheduler`` or ``threads``: override the project's ``[engine]`` table (the
+        command line's ``--workers``, ``--scheduler``, ``--threads``).
 
     Returns
     -------
@@ -152,10 +158,11 @@ def run_project(path, *, overwrite: bool | None = None, quiet: bool = False, too
     steps = proj["steps"]
     ow = proj["output"].get("overwrite", False) if overwrite is None else overwrite
     engine = None
-    if proj["engine"]:
+    chosen = {k: v for k, v in (engine_options or {}).items() if v is not None} or proj["engine"]
+    if chosen:
         from faultmap.engine import make_engine
 
-        engine = make_engine(**proj["engine"])
+        engine = make_engine(**chosen)
     try:
         return run_tools(
             steps if steps is not None else list(registry),

@@ -212,3 +212,27 @@ def test_declared_choices_match_the_analysis():
 
     (zone,) = [p for p in TOOL.params if p.name == "zone"]
     assert tuple(zone.choices) == ZONE_CHOICES
+
+
+def test_common_options_work_after_the_sub_command(cli, scene, tmp_path):
+    # Failure reported: `faultmap run FILE -q` was refused; -q / --threads worked only in some positions.
+    proj = tmp_path / "p.toml"
+    proj.write_text(
+        f'steps = ["prepare"]\n[inputs]\nfaults = "{scene["faults"].name}"\n[output]\ngpkg = "o.gpkg"\n'
+    )
+    for args in (["run", str(proj), "-q", "--threads", "1"], ["-q", "run", str(proj), "--overwrite", "-v"]):
+        res = cli(args)
+        assert res.exit_code == 0, res.output
+    assert (tmp_path / "o.gpkg").exists()
+    res = cli(["prepare", "--faults", str(scene["faults"]), "--out", str(tmp_path / "q.gpkg"), "-q"])
+    # quiet: no progress, notices or summary lines (warnings stay: they are about the data)
+    assert res.exit_code == 0 and "wrote" not in res.output
+    assert all(line.startswith("warning:") for line in res.output.strip().splitlines())
+
+
+def test_help_names_numbers_and_choices(cli):
+    # Failure reported: numeric parameters showed as TEXT in --help.
+    text = cli(["throw", "--help"]).output
+    assert "--station-spacing-m NUMBER" in text
+    assert "--min-samples-per-side INTEGER" in text
+    assert "--robust-loss [tukey|huber|none]" in text
