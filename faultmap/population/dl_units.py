@@ -103,7 +103,6 @@ def _population(
             }
         )
     else:
-        rows = []
         if system_length == "extent" and not has_geom:
             notes.append("faults have no geometry: system length is the sum of segment lengths")
             system_length = "sum"
@@ -111,57 +110,20 @@ def _population(
             notes.append("no throw stations given: system max throw is the max over its segments")
             system_throw = "max"
         geoms = np.asarray(faults["geometry"]) if has_geom else None
-        for s in pd.unique(sid):  # loop over systems (a handful)
-            m = sid == s
-            seg_ids = fid[m]
-            if m.sum() == 1 or system_length == "sum":
-                L = float(np.nansum(length[m])) if m.sum() > 1 else float(length[m][0])
-            else:
-                import shapely
-
-                axis = _system_axis(geoms[m], strike[m], length[m])
-                xy = shapely.get_coordinates(geoms[m])
-                proj = xy @ axis
-                L = float(np.ptp(proj)) if proj.size else float("nan")
-            t_seg = throw[m]
-            e_seg = err[m]
-            if system_throw == "summed" and m.sum() > 1:
-                T, E = _summed_throw(
-                    stations, seg_ids, geoms[m] if geoms is not None else None, strike[m], length[m]
-                )
-                if not np.isfinite(T):
-                    T, E = _max_over(t_seg, e_seg)
-            else:
-                T, E = _max_over(t_seg, e_seg)
-            w = np.where(np.isfinite(length[m]), length[m], 0.0)
-            dips = dip[m]
-            okd = np.isfinite(dips)
-            D_ = float(np.average(dips[okd], weights=w[okd] + 1e-12)) if okd.any() else float("nan")
-            rows.append(
-                {
-                    "unit_id": int(s) if s >= 0 else int(seg_ids[0]),
-                    "fault_ids": ",".join(str(f) for f in seg_ids),
-                    "n_segments": int(m.sum()),
-                    "length_m": L,
-                    "max_throw_m": T,
-                    "max_throw_err_m": E,
-                    "dip_deg": D_,
-                    "censored": bool(censored[m].any()),
-                    "system_size": int(m.sum()),
-                }
-            )
-        cols = [
-            "unit_id",
-            "fault_ids",
-            "n_segments",
-            "length_m",
-            "max_throw_m",
-            "max_throw_err_m",
-            "dip_deg",
-            "censored",
-            "system_size",
-        ]
-        pop = pd.DataFrame(rows, columns=cols)
+        pop = _systems(
+            fid,
+            sid,
+            length,
+            throw,
+            err,
+            dip,
+            censored,
+            strike,
+            geoms,
+            system_length=system_length,
+            system_throw=system_throw,
+            stations=stations,
+        )
 
     if displacement == "throw":
         pop["disp_m"] = pop["max_throw_m"]
@@ -187,6 +149,200 @@ def _population(
     return pop
 
 
+def _systems(
+    fid: np.ndarray,
+    sid: np.ndarray,
+    length: np.ndarray,
+    throw: np.ndarray,
+    err: np.ndarray,
+    dip: np.ndarray,
+    censored: np.ndarray,
+    strike: np.ndarray,
+    geoms: np.ndarray | None,
+    *,
+    system_length: str,
+    system_throw: str,
+    stations: pd.DataFrame | None,
+) -> pd.DataFrame:
+    """One row per linked system (systems in order of first appearance).
+
+    Group sums, maxima and mean strikes are computed for all systems at once
+    (``np.bincount``, a lexicographic sort), so the work grows with the
+    number of traces, not with traces x systems. Linked systems take one
+    projection each of their own vertices (the same product as before, so
+    the same extents to the last bit), the ``system_throw='summed'`` profiles
+    one pass each over their own stations, and the rare systems without a
+    usable strike their axis by SVD.
+    """
+    codes, uniq = pd.factorize(sid)
+    codes = codes.astype(np.int64)
+    G = int(uniq.size)
+    n_seg = np.bincount(codes, minlength=G)
+    order = np.argsort(codes, kind="stable")  # traces grouped, input order within a group
+    starts = np.r_[0, np.cumsum(n_seg)[:-1]] if G else np.empty(0, dtype=np.int64)
+    first = order[starts] if G else np.empty(0, dtype=np.int64)
+    fid_groups = np.split(fid[order].astype(str), np.cumsum(n_seg)[:-1]) if G else []
+    multi = n_seg > 1
+
+    # length: own length, sum of lengths or extent along the mean strike
+    L = length[first].astype(float)
+    if system_length == "sum":
+        sums = np.bincount(codes, weights=np.where(np.isnan(length), 0.0, length), minlength=G)
+        L = np.where(multi, sums, L)
+    elif multi.any():
+        L = np.where(multi, _extents(codes, G, multi, strike, length, geoms), L)
+
+    # throw: largest finite segment maximum (first such segment), its error
+    tt = np.where(np.isfinite(throw), throw, -np.inf)
+    best = np.lexsort((np.arange(fid.size), -tt, codes))[starts] if G else np.empty(0, dtype=np.int64)
+    has_t = np.bincount(codes, weights=np.isfinite(throw), minlength=G) > 0
+    T = np.where(has_t, throw[best], np.nan) if G else np.empty(0)
+    E = np.where(has_t, err[best], np.nan) if G else np.empty(0)
+    if system_throw == "summed" and multi.any():
+        T, E = T.copy(), E.copy()
+        for g, (Ts, Es) in _summed_throws(stations, fid, codes, order, starts, n_seg, strike, length, geoms):
+            if np.isfinite(Ts):
+                T[g], E[g] = Ts, Es
+
+    # dip: length-weighted mean of the finite dips
+    okd = np.isfinite(dip)
+    w = np.where(np.isfinite(length), length, 0.0) + 1e-12
+    wd = np.where(okd, w, 0.0)
+    num = np.bincount(codes, weights=np.where(okd, dip, 0.0) * wd, minlength=G)
+    den = np.bincount(codes, weights=wd, minlength=G)
+    has_d = np.bincount(codes, weights=okd, minlength=G) > 0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        Dip = np.where(has_d, num / np.where(has_d, den, 1.0), np.nan)
+
+    uid = np.where(uniq >= 0, uniq, fid[first] if G else uniq).astype(np.int64)
+    return pd.DataFrame(
+        {
+            "unit_id": uid,
+            "fault_ids": [",".join(f) for f in fid_groups],
+            "n_segments": n_seg.astype(int),
+            "length_m": L,
+            "max_throw_m": T,
+            "max_throw_err_m": E,
+            "dip_deg": Dip,
+            "censored": np.bincount(codes, weights=censored, minlength=G) > 0,
+            "system_size": n_seg.astype(int),
+        },
+        columns=[
+            "unit_id",
+            "fault_ids",
+            "n_segments",
+            "length_m",
+            "max_throw_m",
+            "max_throw_err_m",
+            "dip_deg",
+            "censored",
+            "system_size",
+        ],
+    )
+
+
+def _axes(
+    codes: np.ndarray, G: int, strike: np.ndarray, length: np.ndarray, geoms: np.ndarray | None
+) -> np.ndarray:
+    """Return the unit vectors (east, north) of every system's mean strike, shape (G, 2).
+
+    The length-weighted axial mean of the strikes (:func:`_system_axis`) for
+    all systems at once; a system without a usable strike falls back to the
+    SVD of its vertices, one system at a time (rare).
+    """
+    ok = np.isfinite(strike) & np.isfinite(length)
+    th = np.deg2rad(2.0 * np.where(ok, strike, 0.0))
+    wl = np.where(ok, length, 0.0)
+    c = np.bincount(codes, weights=wl * np.cos(th), minlength=G)
+    s = np.bincount(codes, weights=wl * np.sin(th), minlength=G)
+    good = (np.bincount(codes, weights=ok, minlength=G) > 0) & (np.hypot(c, s) > 0)
+    az = 0.5 * np.arctan2(s, c)
+    axes = np.column_stack([np.sin(az), np.cos(az)])
+    for g in np.flatnonzero(~good):  # systems without a strike: a handful
+        m = codes == g
+        axes[g] = _system_axis(geoms[m], strike[m], length[m])
+    return axes
+
+
+def _extents(
+    codes: np.ndarray,
+    G: int,
+    multi: np.ndarray,
+    strike: np.ndarray,
+    length: np.ndarray,
+    geoms: np.ndarray | None,
+) -> np.ndarray:
+    """Extent (m) of each system's vertices along its mean strike (NaN for single traces)."""
+    import shapely
+
+    keep = multi[codes]
+    sub = np.flatnonzero(keep)
+    remap = np.full(G, -1, dtype=np.int64)
+    gm = np.flatnonzero(multi)
+    remap[gm] = np.arange(gm.size)
+    sc = remap[codes[sub]]
+    axes = _axes(sc, gm.size, strike[sub], length[sub], geoms[sub])
+    xy, gi = shapely.get_coordinates(geoms[sub], return_index=True)
+    vg = sc[gi]
+    o = np.argsort(vg, kind="stable")  # vertices grouped by system, input order within
+    xy = xy[o]
+    cnt = np.bincount(vg, minlength=gm.size)
+    ends = np.cumsum(cnt)
+    out = np.full(G, np.nan)
+    for g in np.flatnonzero(cnt):  # one matrix-vector product per linked system
+        proj = xy[ends[g] - cnt[g] : ends[g]] @ axes[g]
+        out[gm[g]] = np.ptp(proj)
+    return out
+
+
+def _summed_throws(
+    stations: pd.DataFrame,
+    fid: np.ndarray,
+    codes: np.ndarray,
+    order: np.ndarray,
+    starts: np.ndarray,
+    n_seg: np.ndarray,
+    strike: np.ndarray,
+    length: np.ndarray,
+    geoms: np.ndarray | None,
+):
+    """Yield (system, (summed max throw, error)) for every multi-segment system.
+
+    The stations are filtered and sorted by fault id once; each system then
+    takes its stations by binary search instead of scanning all of them.
+    """
+    import shapely
+
+    st = stations
+    keep = np.ones(len(st), dtype=bool)
+    if "status" in st:
+        keep &= np.asarray(st["status"] == "ok")
+    keep &= np.isfinite(np.asarray(st["throw_m"], dtype=float))
+    if "geometry" not in st or keep.sum() < 2 or geoms is None:
+        return
+    rows_ok = np.flatnonzero(keep)
+    sf = np.asarray(st["fault_id"]).astype(np.int64)[rows_ok]
+    so = np.argsort(sf, kind="stable")
+    sfs = sf[so]
+    xy = shapely.get_coordinates(np.asarray(st["geometry"])[rows_ok])
+    t_all = np.asarray(st["throw_m"], dtype=float)[rows_ok]
+    e_all = (
+        np.asarray(st["throw_err_m"], dtype=float)[rows_ok] if "throw_err_m" in st else np.zeros(rows_ok.size)
+    )
+    for g in np.flatnonzero(n_seg > 1):  # loop over linked systems
+        m = order[starts[g] : starts[g] + n_seg[g]]
+        seg_ids = fid[m]
+        lo = np.searchsorted(sfs, seg_ids, side="left")
+        hi = np.searchsorted(sfs, seg_ids, side="right")
+        pick = np.sort(np.concatenate([so[a:b] for a, b in zip(lo, hi, strict=True)]))
+        yield (
+            g,
+            _summed_throw_arrays(
+                sf[pick], xy[pick], t_all[pick], e_all[pick], seg_ids, geoms[m], strike[m], length[m]
+            ),
+        )
+
+
 def _max_over(t: np.ndarray, e: np.ndarray) -> tuple[float, float]:
     ok = np.isfinite(t)
     if not ok.any():
@@ -195,29 +351,39 @@ def _max_over(t: np.ndarray, e: np.ndarray) -> tuple[float, float]:
     return float(t[i]), float(e[i])
 
 
-def _summed_throw(
-    stations: pd.DataFrame, seg_ids: np.ndarray, geoms: Any, strikes: np.ndarray, lengths: np.ndarray
+def _summed_throw_arrays(
+    sf: np.ndarray,
+    xy: np.ndarray,
+    t_all: np.ndarray,
+    e_all: np.ndarray,
+    seg_ids: np.ndarray,
+    geoms: Any,
+    strikes: np.ndarray,
+    lengths: np.ndarray,
 ) -> tuple[float, float]:
-    """Max of the summed along-strike throw profile of overlapping segments."""
-    import shapely
+    """Max of the summed along-strike throw profile of overlapping segments.
 
-    st = stations[np.isin(np.asarray(stations["fault_id"]).astype(np.int64), seg_ids)]
-    if "status" in st:
-        st = st[st["status"] == "ok"]
-    st = st[np.isfinite(np.asarray(st["throw_m"], dtype=float))]
-    if len(st) < 2 or "geometry" not in st:
+    Parameters
+    ----------
+    sf, xy, t_all, e_all : numpy.ndarray
+        The system's good stations (input order): fault id, (x, y) (m),
+        throw (m) and throw error (m).
+    seg_ids, geoms, strikes, lengths
+        The system's segments.
+
+    Returns
+    -------
+    throw, error : float
+        Maximum of the summed profile (m) and its error (errors added in
+        quadrature); NaN when fewer than two stations.
+    """
+    if sf.size < 2:
         return float("nan"), float("nan")
-    axis = _system_axis(geoms, strikes, lengths) if geoms is not None else None
-    if axis is None:
-        return float("nan"), float("nan")
-    xy = shapely.get_coordinates(np.asarray(st["geometry"]))
+    axis = _system_axis(geoms, strikes, lengths)
     s_all = xy @ axis
     grid = np.unique(s_all)
     total = np.zeros(grid.size)
     var = np.zeros(grid.size)
-    sf = np.asarray(st["fault_id"]).astype(np.int64)
-    t_all = np.asarray(st["throw_m"], dtype=float)
-    e_all = np.asarray(st["throw_err_m"], dtype=float) if "throw_err_m" in st else np.zeros(len(st))
     e_all = np.where(np.isfinite(e_all), e_all, 0.0)
     for f in seg_ids:  # loop over a system's segments
         k = sf == f

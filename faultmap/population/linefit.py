@@ -17,7 +17,12 @@ Three line fits are offered:
   (``length_rel_err``, default 5 %, our choice) on the lengths.
 
 Confidence intervals are seeded non-parametric bootstrap percentiles over
-the faults (Efron & Tibshirani 1993, common practice).
+the faults (Efron & Tibshirani 1993, common practice). The resamples are
+drawn and fitted in blocks of rows (the same random stream as one draw, so
+the same numbers), which bounds the memory; unless the caller gives their
+number, :func:`bootstrap_replicates` bounds the work too (1000 resamples up
+to 2000 faults, then a fixed budget of ``BOOT_BUDGET`` resampled values,
+never fewer than ``BOOT_MIN``).
 """
 
 from __future__ import annotations
@@ -39,12 +44,57 @@ __all__ = [
     "york_fit",
     "fit_line",
     "fit_displacement_length",
+    "bootstrap_replicates",
+    "BOOT_BUDGET",
+    "BOOT_MAX",
+    "BOOT_MIN",
 ]
 
 #: Line-fit models, in the order they are reported.
 MODELS: tuple[str, ...] = ("ols", "rma", "york")
 
 _LN10 = float(np.log(10.0))
+
+#: Resampled values (resamples x faults) of the automatic bootstrap rule.
+BOOT_BUDGET: int = 2_000_000
+#: Resamples of the automatic rule: at most (the former fixed default) ...
+BOOT_MAX: int = 1000
+#: ... and at least (Efron & Tibshirani 1993: some 200 suffice for a standard error).
+BOOT_MIN: int = 200
+_BOOT_BLOCK = 4_000_000  # resampled values fitted at once (memory bound)
+
+
+def bootstrap_replicates(n: int, *, bootstrap_n: int | None = None) -> int:
+    """Return the number of bootstrap resamples of a line fit.
+
+    Parameters
+    ----------
+    n : int
+        Number of faults (units) fitted.
+    bootstrap_n : int, optional
+        Given by the user: used exactly. None (default): the automatic rule.
+
+    Returns
+    -------
+    int
+        ``bootstrap_n`` when given; otherwise
+        ``min(BOOT_MAX, max(BOOT_MIN, BOOT_BUDGET // n))``: 1000 resamples up
+        to 2000 faults, then ``2e6 / n``, never fewer than 200.
+
+    Notes
+    -----
+    Our rule. Efron & Tibshirani (1993, *An Introduction to the Bootstrap*,
+    ch. 6 and 13): about 200 resamples suffice for a bootstrap standard
+    error, percentile intervals want more (of order 1000); with many faults
+    the intervals are narrow and the Monte Carlo error of their ends, which
+    shrinks as ``1 / sqrt(B)``, stays small next to them. The number used is
+    reported (``bootstrap_n_used``).
+    """
+    if bootstrap_n is not None:
+        if bootstrap_n < 0:
+            raise ParameterError(f"bootstrap_n={bootstrap_n} must be >= 0")
+        return int(bootstrap_n)
+    return int(min(BOOT_MAX, max(BOOT_MIN, BOOT_BUDGET // max(1, int(n)))))
 
 
 def _check_choice(name: str, value: str, choices: Sequence[str]) -> None:
@@ -112,6 +162,11 @@ class LineFit:
         a = 100.0 * (1.0 - self.ci_level) / 2.0
         lo, hi = np.percentile(values[ok], [a, 100.0 - a])
         return float(lo), float(hi)
+
+    @property
+    def bootstrap_n_used(self) -> int:
+        """Number of bootstrap resamples drawn (degenerate ones included, as NaN)."""
+        return int(self.boot_exponent.size)
 
     @property
     def exponent_ci(self) -> tuple[float, float]:
@@ -345,6 +400,20 @@ def _log_errors(
     return sx, sy, note
 
 
+def _boot_block(
+    model: str, x: np.ndarray, y: np.ndarray, idx: np.ndarray, sx: np.ndarray | None, sy: np.ndarray | None
+) -> tuple[np.ndarray, np.ndarray]:
+    """Slopes and intercepts of the resamples ``idx`` (rows: resamples of x, y)."""
+    X, Y = x[idx], y[idx]
+    if model == "ols":
+        return ols_line(X, Y)
+    if model == "rma":
+        return rma_line(X, Y)
+    res = york_fit(X, Y, sx[idx], sy[idx])
+    bad = ~res["converged"] | (np.ptp(X, axis=1) <= 1e-12)
+    return np.where(bad, np.nan, res["slope"]), np.where(bad, np.nan, res["intercept"])
+
+
 def fit_line(
     length_m: Any,
     disp_m: Any,
@@ -352,7 +421,7 @@ def fit_line(
     model: str = "ols",
     disp_err_m: Any = None,
     length_rel_err: float = 0.05,
-    bootstrap_n: int = 1000,
+    bootstrap_n: int | None = None,
     ci_level: float = 0.95,
     seed: int = 0,
 ) -> LineFit:
@@ -368,8 +437,10 @@ def fit_line(
         1-sigma displacement errors (m); required for ``york``.
     length_rel_err : float
         Relative 1-sigma length error used by ``york`` (default 0.05).
-    bootstrap_n : int
-        Number of bootstrap resamples (0 disables the intervals).
+    bootstrap_n : int, optional
+        Number of bootstrap resamples, used exactly when given (0 disables
+        the intervals). None (default): :func:`bootstrap_replicates` (1000
+        up to 2000 faults, then fewer, never fewer than 200).
     ci_level : float
         Two-sided level of the percentile intervals (0-1).
     seed : int
@@ -386,12 +457,15 @@ def fit_line(
     -----
     OLS and RMA: Sokal & Rohlf (Biometry). York: York et al. (2004).
     Bootstrap: resampling of faults with replacement, percentile intervals
-    (Efron & Tibshirani 1993; common practice).
+    (Efron & Tibshirani 1993; common practice). Resamples are drawn and
+    fitted in blocks of at most ``_BOOT_BLOCK`` values; the blocks take
+    consecutive draws of one generator, so the indices are those of a single
+    ``(bootstrap_n, n)`` draw.
     """
     _check_choice("model", model, MODELS)
     if not 0.0 < ci_level < 1.0:
         raise ParameterError(f"ci_level={ci_level} must be between 0 and 1 (e.g. 0.95)")
-    if bootstrap_n < 0:
+    if bootstrap_n is not None and bootstrap_n < 0:
         raise ParameterError(f"bootstrap_n={bootstrap_n} must be >= 0")
     L = np.asarray(length_m, dtype=float).ravel()
     D = np.asarray(disp_m, dtype=float).ravel()
@@ -416,6 +490,7 @@ def fit_line(
     r = float(np.corrcoef(x, y)[0, 1]) if np.ptp(y) > 0 else 0.0
     r2 = r * r
     mswd = float("nan")
+    sx = sy = None
     if model == "york":
         sx, sy, note = _log_errors(L[ok], D[ok], None if E is None else E[ok], length_rel_err)
         if not np.all(np.isfinite(sy)):
@@ -439,22 +514,18 @@ def fit_line(
         b_se = abs(b) * np.sqrt((1.0 - r2) / n)
         a_se = float("nan")
 
+    n_boot = bootstrap_replicates(n, bootstrap_n=bootstrap_n)
     boot_b = np.empty(0)
     boot_a = np.empty(0)
-    if bootstrap_n > 0:
+    if n_boot > 0:
+        boot_b = np.empty(n_boot)
+        boot_a = np.empty(n_boot)
         rng = np.random.default_rng(seed)
-        idx = rng.integers(0, n, size=(bootstrap_n, n))
-        X, Y = x[idx], y[idx]
-        if model == "ols":
-            boot_b, boot_a = ols_line(X, Y)
-        elif model == "rma":
-            boot_b, boot_a = rma_line(X, Y)
-        else:
-            res = york_fit(X, Y, sx[idx], sy[idx])
-            boot_b, boot_a = res["slope"], res["intercept"]
-            bad = ~res["converged"] | (np.ptp(X, axis=1) <= 1e-12)
-            boot_b = np.where(bad, np.nan, boot_b)
-            boot_a = np.where(bad, np.nan, boot_a)
+        step = max(1, _BOOT_BLOCK // n)
+        for r0 in range(0, n_boot, step):  # blocks of resamples (memory bound)
+            r1 = min(n_boot, r0 + step)
+            idx = rng.integers(0, n, size=(r1 - r0, n))
+            boot_b[r0:r1], boot_a[r0:r1] = _boot_block(model, x, y, idx, sx, sy)
     return LineFit(
         model=model,
         fitted=True,
@@ -476,7 +547,7 @@ def fit_displacement_length(
     population: pd.DataFrame,
     *,
     models: Sequence[str] = MODELS,
-    bootstrap_n: int = 1000,
+    bootstrap_n: int | None = None,
     ci_level: float = 0.95,
     seed: int = 0,
     length_rel_err: float = 0.05,
@@ -491,8 +562,9 @@ def fit_displacement_length(
     models : sequence of str
         Any of ``ols``, ``rma``, ``york``.
     bootstrap_n, ci_level, seed, length_rel_err
-        See :func:`fit_line`. Every model uses the same seed, hence the same
-        resamples.
+        See :func:`fit_line` (``bootstrap_n`` None: the automatic rule of
+        :func:`bootstrap_replicates`). Every model uses the same seed, hence
+        the same resamples.
 
     Returns
     -------
@@ -519,4 +591,3 @@ def fit_displacement_length(
         )
         for m in models
     }
-

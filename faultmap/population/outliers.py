@@ -76,6 +76,58 @@ def scaling_residuals(
     )
 
 
+def _near_larger(geoms: np.ndarray, flen: np.ndarray, k: np.ndarray, near_factor: float) -> np.ndarray:
+    """Whether each trace ``k`` lies within ``near_factor`` own lengths of a trace at least twice as long.
+
+    Parameters
+    ----------
+    geoms : numpy.ndarray
+        Trace geometries (metric CRS).
+    flen : numpy.ndarray
+        Trace lengths (m).
+    k : numpy.ndarray
+        Positions of the traces asked about.
+    near_factor : float
+        Search radius in own lengths.
+
+    Returns
+    -------
+    numpy.ndarray of bool
+        One per ``k``.
+
+    Notes
+    -----
+    Candidate pairs come from a shapely STRtree ``dwithin`` query (distance
+    ``<= near_factor * flen[k]``, the same test as the minimum of the
+    pairwise distances), so the work grows with the number of neighbours,
+    not with the number of traces.
+    """
+    import shapely
+
+    out = np.zeros(k.size, dtype=bool)
+    ok = np.isfinite(flen[k])
+    q = k[ok]
+    if q.size == 0:
+        return out
+    tree = shapely.STRtree(geoms)
+    pair = tree.query(geoms[q], predicate="dwithin", distance=near_factor * flen[q])
+    big = flen[pair[1]] >= 2.0 * flen[q][pair[0]]
+    hit = np.zeros(q.size, dtype=bool)
+    hit[pair[0][big]] = True
+    out[np.flatnonzero(ok)] = hit
+    return out
+
+
+def _join_hints(parts: list[tuple[np.ndarray, str]], size: int) -> np.ndarray:
+    """Join the texts of the true masks with '; ' (object array of ``size``)."""
+    out = np.full(size, "", dtype=object)
+    for mask, text in parts:
+        sel = np.flatnonzero(mask)
+        cur = out[sel]
+        out[sel] = np.where(cur == "", text, cur + ("; " + text))
+    return out
+
+
 def _hints(
     faults: pd.DataFrame,
     population: pd.DataFrame,
@@ -85,42 +137,45 @@ def _hints(
     near_factor: float,
     detection_throw_m: float | None,
 ) -> np.ndarray:
-    """Short reason hints for flagged units (empty for the others)."""
+    """Short reason hints for flagged units (empty for the others).
+
+    Vectorised over the flagged units; the neighbour search uses a spatial
+    index (:func:`_near_larger`).
+    """
     hints = np.full(len(population), "", dtype=object)
     flagged = np.flatnonzero(flags["scaling_flag"].isin(["under_displaced", "over_displaced"]))
     if flagged.size == 0:
         return hints
+    nf = flagged.size
     has_geom = "geometry" in faults.columns
     fid = np.asarray(faults["fault_id"]).astype(np.int64)
     flen = np.asarray(faults["length_m"], dtype=float)
-    geoms = np.asarray(faults["geometry"]) if has_geom else None
-    n_ok = np.asarray(faults["n_stations_ok"], dtype=float) if "n_stations_ok" in faults else None
-    for i in flagged:  # loop over the few flagged units
-        row = population.iloc[i]
-        h: list[str] = []
-        if bool(row["censored"]):
-            h.append("censored")
-        if int(row["system_size"]) > 1:
-            h.append("linked system")
-        if unit == "trace" and geoms is not None:
-            import shapely
-
-            k = np.flatnonzero(fid == int(row["unit_id"]))
-            if k.size:
-                k = int(k[0])
-                big = np.flatnonzero(flen >= 2.0 * flen[k])
-                if big.size and np.isfinite(flen[k]):
-                    d = shapely.distance(geoms[k], geoms[big])
-                    if np.nanmin(d) <= near_factor * flen[k]:
-                        h.append("short fault near a larger one")
-                if n_ok is not None and np.isfinite(n_ok[k]) and n_ok[k] < 3:
-                    h.append("few throw stations")
-        D = float(row["disp_m"])
-        E = float(row["disp_err_m"])
-        if np.isfinite(E) and D > 0 and E / D > 0.5:
-            h.append("large throw error")
-        T = float(row["max_throw_m"])
-        if detection_throw_m is not None and np.isfinite(detection_throw_m) and T < detection_throw_m:
-            h.append("throw below detection limit")
-        hints[i] = "; ".join(h) if h else "no obvious cause"
+    parts: list[tuple[np.ndarray, str]] = [
+        (population["censored"].to_numpy(bool)[flagged], "censored"),
+        (population["system_size"].to_numpy(np.int64)[flagged] > 1, "linked system"),
+    ]
+    if unit == "trace" and has_geom:
+        geoms = np.asarray(faults["geometry"])
+        uid = population["unit_id"].to_numpy().astype(np.int64)[flagged]
+        order = np.argsort(fid, kind="stable")
+        at = np.searchsorted(fid[order], uid)
+        found = at < fid.size
+        found[found] = fid[order][at[found]] == uid[found]
+        k = order[np.where(found, at, 0)]  # first trace with the unit's id
+        near = np.zeros(nf, dtype=bool)
+        near[found] = _near_larger(geoms, flen, k[found], near_factor)
+        parts.append((near, "short fault near a larger one"))
+        if "n_stations_ok" in faults:
+            n_ok = np.asarray(faults["n_stations_ok"], dtype=float)[k]
+            parts.append((found & np.isfinite(n_ok) & (n_ok < 3), "few throw stations"))
+    D = population["disp_m"].to_numpy(float)[flagged]
+    E = population["disp_err_m"].to_numpy(float)[flagged]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        parts.append((np.isfinite(E) & (D > 0) & (E / D > 0.5), "large throw error"))
+    if detection_throw_m is not None and np.isfinite(detection_throw_m):
+        T = population["max_throw_m"].to_numpy(float)[flagged]
+        parts.append((T < detection_throw_m, "throw below detection limit"))
+    text = _join_hints(parts, nf)
+    text[text == ""] = "no obvious cause"
+    hints[flagged] = text
     return hints

@@ -27,6 +27,7 @@ from faultmap.errors import InputError, ParameterError
 __all__ = ["power_law_mle", "ks_distance", "scan_x_min"]
 
 _CHUNK_ELEMS = 2_000_000  # elements of the (rows, candidates, n) KS array per chunk
+_CAND_GROUP = 8  # x_min candidates of neighbouring rank handled together in the KS scan
 
 
 def power_law_mle(x: Any, x_min: float) -> tuple[float, float, int]:
@@ -108,6 +109,66 @@ def _candidate_positions(
     return pos.astype(np.int64)
 
 
+def _ks_blocks(
+    L: np.ndarray, Li: np.ndarray, alpha: np.ndarray, pos: np.ndarray, m: np.ndarray, D: np.ndarray
+) -> None:
+    """Fill D (B, C) with the KS distance of every row and candidate (in place).
+
+    Parameters
+    ----------
+    L : numpy.ndarray
+        (B, n) ln of the row-sorted samples.
+    Li : numpy.ndarray
+        (B, C) ln x_min of each candidate.
+    alpha : numpy.ndarray
+        (B, C) MLE exponent of each candidate (NaN where not valid).
+    pos : numpy.ndarray
+        (C,) ascending candidate rank positions.
+    m : numpy.ndarray
+        (C,) tail sizes ``n - pos`` (float).
+    D : numpy.ndarray
+        (B, C) output, written in place.
+
+    Notes
+    -----
+    Candidates are taken in small groups of neighbouring ranks so that each
+    group works only on the columns of its longest tail (``j >= pos[first]``):
+    the values below a candidate are not part of its KS distance, so about
+    half of the (rows, candidates, n) work is skipped. Each element is
+    computed with the same operations as the straightforward masked maximum,
+    so the distances are the same to the last bit. Blocks hold at most
+    ``_CHUNK_ELEMS`` elements.
+    """
+    B, n = L.shape
+    C = pos.size
+    c_step = max(1, min(C, _CAND_GROUP, _CHUNK_ELEMS // n))
+    for c0 in range(0, C, c_step):
+        c1 = min(C, c0 + c_step)
+        p0 = int(pos[c0])
+        w = n - p0  # columns of the group's longest tail
+        k = np.arange(p0, n)[None, :] - pos[c0:c1, None]  # (c, w) rank in each tail
+        outside = k < 0
+        kk = np.where(outside, 0, k).astype(float)
+        mm = m[c0:c1, None]
+        up = (kk + 1.0) / mm
+        lo = kk / mm
+        r_step = max(1, _CHUNK_ELEMS // ((c1 - c0) * w))
+        for r0 in range(0, B, r_step):
+            r1 = min(B, r0 + r_step)
+            a = alpha[r0:r1, c0:c1]
+            F = np.subtract(L[r0:r1, None, p0:], Li[r0:r1, c0:c1, None])  # (r, c, w)
+            with np.errstate(invalid="ignore", over="ignore"):
+                np.multiply(1.0 - a[:, :, None], F, out=F)
+                np.expm1(F, out=F)
+            np.negative(F, out=F)  # model CDF
+            d = np.subtract(up[None], F)
+            np.subtract(F, lo[None], out=F)
+            np.maximum(d, F, out=d)
+            if outside.any():
+                np.copyto(d, -np.inf, where=outside[None])
+            D[r0:r1, c0:c1] = d.max(axis=2)
+
+
 def _scan_sorted(xs: np.ndarray, pos: np.ndarray) -> tuple[np.ndarray, ...]:
     """Vectorised x_min scan of row-sorted samples.
 
@@ -140,27 +201,7 @@ def _scan_sorted(xs: np.ndarray, pos: np.ndarray) -> tuple[np.ndarray, ...]:
         alpha = np.where(valid, 1.0 + m[None, :] / np.where(valid, denom, 1.0), np.nan)
     D = np.full((B, C), np.inf)
     if C and n:
-        j = np.arange(n)
-        step = max(1, _CHUNK_ELEMS // n)
-        c_step = min(C, step)
-        r_step = max(1, step // c_step)
-        for c0 in range(0, C, c_step):
-            cs = slice(c0, min(C, c0 + c_step))
-            k = j[None, :] - pos[cs, None]  # (c, n)
-            inside = k >= 0
-            kk = np.where(inside, k, 0).astype(float)
-            mm = m[cs, None]
-            up = (kk + 1.0) / mm
-            lo = kk / mm
-            for r0 in range(0, B, r_step):
-                rs = slice(r0, min(B, r0 + r_step))
-                a = alpha[rs, cs]
-                dL = L[rs, None, :] - Li[rs, cs, None]  # (r, c, n)
-                with np.errstate(invalid="ignore", over="ignore"):
-                    F = -np.expm1((1.0 - a[:, :, None]) * dL)
-                d = np.maximum(up[None] - F, F - lo[None])
-                d = np.where(inside[None], d, -np.inf)
-                D[rs, cs] = d.max(axis=2)
+        _ks_blocks(L, Li, alpha, pos, m, D)
     D = np.where(valid & np.isfinite(D), D, np.inf)
     if C == 0:
         nan = np.full(B, np.nan)
@@ -237,7 +278,13 @@ class PowerLawFit:
         Bootstrap goodness-of-fit p-value (NaN if not computed);
         p <= 0.1 rules the power law out (Clauset et al. 2009).
     gof_n : int
-        Number of bootstrap data sets.
+        Number of bootstrap data sets used for ``gof_p``.
+    gof_p_se : float
+        Monte Carlo standard error of ``gof_p``, ``sqrt(p (1 - p) / gof_n)``
+        (Clauset et al. 2009, sec. 4.1); NaN when the test was not run.
+    gof_rule : str
+        ``given`` (``gof_n`` set by the caller) or ``auto`` (chosen by
+        :func:`~faultmap.population.powerlaw_gof.gof_replicates`).
     lr_exponential, p_exponential, llr_exponential : float
         Vuong test against the exponential: normalised ratio, p-value and
         raw log-likelihood ratio (positive favours the power law).
@@ -262,6 +309,8 @@ class PowerLawFit:
     ks_d: float = float("nan")
     gof_p: float = float("nan")
     gof_n: int = 0
+    gof_p_se: float = float("nan")
+    gof_rule: str = ""
     lr_exponential: float = float("nan")
     p_exponential: float = float("nan")
     llr_exponential: float = float("nan")

@@ -39,6 +39,7 @@ import pandas as pd
 
 from faultmap.population.dl_units import _population
 from faultmap.population.linefit import (
+    BOOT_MAX,
     MODELS,
     LineFit,
     _check_choice,
@@ -93,11 +94,30 @@ def _displacement_name(displacement: str) -> str:
     return "max_throw_m" if displacement == "throw" else "max_dip_slip_m"
 
 
+def _unit_of_trace(pop: pd.DataFrame, fid: np.ndarray) -> np.ndarray:
+    """Return the unit id of each trace (-1 when in no unit), from the units' ``fault_ids`` lists.
+
+    Vectorised: the comma-separated lists are split and exploded once; a
+    trace listed by several units belongs to the last (as a dict filled in
+    order would keep).
+    """
+    ids = pop["fault_ids"].astype(str).reset_index(drop=True).str.split(",").explode()
+    ids = ids[ids.str.len() > 0]
+    owner = pd.Series(pop["unit_id"].to_numpy(np.int64)[ids.index.to_numpy()], index=ids.to_numpy(np.int64))
+    owner = owner[~owner.index.duplicated(keep="last")]
+    return owner.reindex(fid).fillna(-1).to_numpy(np.int64)
+
+
 # --------------------------------------------------------------------------
 # Top level
 # --------------------------------------------------------------------------
 def _fit_rows(
-    fits: Mapping[str, LineFit], *, variable: str, unit: str, include_censored: bool, bootstrap_n: int
+    fits: Mapping[str, LineFit],
+    *,
+    variable: str,
+    unit: str,
+    include_censored: bool,
+    bootstrap_n: int | None,
 ) -> list[dict[str, Any]]:
     rows = []
     for name, f in fits.items():
@@ -119,7 +139,9 @@ def _fit_rows(
                 "n_faults": f.n,
                 "mswd": f.mswd,
                 "ci_level": f.ci_level,
-                "bootstrap_n": bootstrap_n,
+                "bootstrap_n": BOOT_MAX if bootstrap_n is None else int(bootstrap_n),
+                "bootstrap_n_used": f.bootstrap_n_used,
+                "bootstrap_n_rule": "auto" if bootstrap_n is None else "given",
                 "include_censored": include_censored,
                 "fitted": f.fitted,
                 "reason": f.reason,
@@ -139,7 +161,7 @@ def analyse_scaling(
     system_throw: str = "max",
     models: Sequence[str] = MODELS,
     residual_model: str = "ols",
-    bootstrap_n: int = 1000,
+    bootstrap_n: int | None = None,
     ci_level: float = 0.95,
     seed: int = 0,
     outlier_k: float = 2.0,
@@ -163,7 +185,12 @@ def analyse_scaling(
         Model the per-fault residuals and outlier flags refer to (default
         ``ols``: the displacement expected for a fault's length).
     bootstrap_n, ci_level, seed, length_rel_err
-        See :func:`fit_line`.
+        See :func:`fit_line`. ``bootstrap_n`` None (default) chooses the
+        number of resamples from the number of units
+        (:func:`~faultmap.population.linefit.bootstrap_replicates`: 1000 up
+        to 2000 units, never fewer than 200); a number is used exactly. The
+        table reports ``bootstrap_n`` (asked for, or the cap 1000),
+        ``bootstrap_n_used`` and ``bootstrap_n_rule``.
     outlier_k : float
         Outlier threshold in standard deviations of the log residuals.
     near_factor : float
@@ -247,11 +274,7 @@ def analyse_scaling(
     if unit == "trace":
         unit_of = fid
     else:
-        pos = {}
-        for uid, ids in zip(pop["unit_id"], pop["fault_ids"], strict=True):
-            for f in ids.split(","):
-                pos[int(f)] = int(uid)
-        unit_of = np.array([pos.get(int(f), -1) for f in fid], dtype=np.int64)
+        unit_of = _unit_of_trace(pop, fid)
     lut = pd.DataFrame(
         {
             "unit_id": pop["unit_id"].to_numpy(np.int64),
@@ -323,7 +346,8 @@ def analyse_scaling(
         "system_throw": system_throw,
         "models": ",".join(models),
         "residual_model": residual_model,
-        "bootstrap_n": bootstrap_n,
+        "bootstrap_n": "auto" if bootstrap_n is None else bootstrap_n,
+        "bootstrap_n_used": max((f.bootstrap_n_used for f in fits.values()), default=0),
         "ci_level": ci_level,
         "seed": seed,
         "outlier_k": outlier_k,

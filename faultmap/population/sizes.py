@@ -43,7 +43,7 @@ from faultmap.errors import InputError
 from faultmap.population.alternatives import compare_alternatives
 from faultmap.population.detection import detection_effects
 from faultmap.population.powerlaw_fit import PowerLawFit, ks_distance, power_law_mle, scan_x_min
-from faultmap.population.powerlaw_gof import power_law_gof
+from faultmap.population.powerlaw_gof import GOF_MAX, gof_p_se, gof_replicates, power_law_gof
 
 __all__ = [
     "SizeResult",
@@ -81,7 +81,7 @@ def fit_power_law(
     x_min: float | None = None,
     min_tail: int = 5,
     max_candidates: int | None = 200,
-    gof_n: int = 1000,
+    gof_n: int | None = None,
     seed: int = 0,
     compare: bool = True,
 ) -> PowerLawFit:
@@ -97,8 +97,12 @@ def fit_power_law(
         Fixed lower bound; default: chosen by the KS scan.
     min_tail, max_candidates
         See :func:`scan_x_min`.
-    gof_n : int
-        Bootstrap data sets for the goodness-of-fit p-value (0 skips it).
+    gof_n : int, optional
+        Bootstrap data sets for the goodness-of-fit p-value, used exactly
+        when given (0 skips the test). None (default): chosen by
+        :func:`~faultmap.population.powerlaw_gof.gof_replicates` from the
+        sample size (1000 up to 500 values with the default candidates,
+        then a fixed budget of work, never fewer than 100).
     seed : int
         Random seed of the bootstrap.
     compare : bool
@@ -113,7 +117,9 @@ def fit_power_law(
     Notes
     -----
     Clauset, Shalizi & Newman (2009): MLE eqs. 3.1-3.2, x_min by KS
-    (section 3.3), goodness of fit (4.1), Vuong test (5.1).
+    (section 3.3), goodness of fit (4.1), Vuong test (5.1). The number of
+    synthetic sets used is ``gof_n`` on the result, the Monte Carlo standard
+    error of the p-value ``sqrt(p (1 - p) / B)`` is ``gof_p_se`` (sec. 4.1).
     """
     v = np.asarray(x, dtype=float).ravel()
     v = np.sort(v[np.isfinite(v) & (v > 0)])
@@ -158,12 +164,13 @@ def fit_power_law(
             )
         d = ks_distance(v, xm, alpha)
     gof_p = float("nan")
-    if gof_n > 0:
+    n_sets = gof_replicates(n, gof_n=gof_n, min_tail=min_tail, max_candidates=max_candidates)
+    if n_sets > 0:
         gof_p, _ = power_law_gof(
             v,
             xm,
             alpha,
-            gof_n=gof_n,
+            gof_n=n_sets,
             seed=seed,
             min_tail=min_tail,
             max_candidates=max_candidates,
@@ -182,7 +189,9 @@ def fit_power_law(
         n_tail=int(nt),
         ks_d=float(d),
         gof_p=gof_p,
-        gof_n=int(gof_n),
+        gof_n=int(n_sets),
+        gof_p_se=gof_p_se(gof_p, n_sets),
+        gof_rule="given" if gof_n is not None else "auto",
         values=v,
         **alt,
     )
@@ -207,7 +216,7 @@ def ccdf(x: Any) -> tuple[np.ndarray, np.ndarray]:
     return v, (n - np.arange(n)) / n if n else np.empty(0)
 
 
-def _row(fit: PowerLawFit) -> dict[str, Any]:
+def _row(fit: PowerLawFit, gof_requested: int) -> dict[str, Any]:
     return {
         "model": "power_law",
         "variable": fit.variable,
@@ -218,7 +227,10 @@ def _row(fit: PowerLawFit) -> dict[str, Any]:
         "n_tail": fit.n_tail,
         "ks_d": fit.ks_d,
         "gof_p": fit.gof_p,
-        "gof_n": fit.gof_n,
+        "gof_n": gof_requested,
+        "gof_n_used": fit.gof_n if fit.fitted else 0,
+        "gof_p_se": fit.gof_p_se,
+        "gof_n_rule": fit.gof_rule,
         "lr_exponential": fit.lr_exponential,
         "p_exponential": fit.p_exponential,
         "llr_exponential": fit.llr_exponential,
@@ -238,7 +250,7 @@ def analyse_sizes(
     detection_limits: Mapping[str, float | None] | None = None,
     min_tail: int = 5,
     max_candidates: int | None = 200,
-    gof_n: int = 1000,
+    gof_n: int | None = None,
     seed: int = 0,
 ) -> SizeResult:
     """Power-law size distributions of a population, with their caveats.
@@ -258,11 +270,15 @@ def analyse_sizes(
         Detection limit per variable (same unit), e.g.
         ``{'max_throw_m': 2.0}``.
     min_tail, max_candidates, gof_n, seed
-        See :func:`fit_power_law`.
+        See :func:`fit_power_law` (``gof_n`` None: the automatic rule).
 
     Returns
     -------
     SizeResult
+        Its table has ``gof_n`` (the number asked for, or the rule's cap
+        1000), ``gof_n_used`` (synthetic sets behind ``gof_p``), ``gof_p_se``
+        (Monte Carlo standard error ``sqrt(p (1 - p) / B)``) and
+        ``gof_n_rule`` (``given`` or ``auto``).
 
     Notes
     -----
@@ -289,7 +305,7 @@ def analyse_sizes(
         )
         fits[var] = f
         data[var] = f.values
-        row = _row(f)
+        row = _row(f, GOF_MAX if gof_n is None else int(gof_n))
         if not f.fitted:
             notes.append(f"power law of {var} not fitted: {f.reason}")
         elif f.n < 50:

@@ -89,6 +89,8 @@ def run(ctx, p: dict) -> None:
     ctx.faults = res.faults
     ctx.results["scaling"] = {"dl": res, "sizes": sizes}
 
+    ctx.record("bootstrap_n_used", int(res.settings["bootstrap_n_used"]))
+    ctx.record("bootstrap_n_rule", "given" if p["bootstrap_n"] is not None else "auto")
     for name, f in res.fits.items():
         if f.fitted:
             lo, hi = f.exponent_ci
@@ -99,6 +101,9 @@ def run(ctx, p: dict) -> None:
             ctx.record(
                 f"alpha_{var}", f"{f.alpha:.4g} +- {f.se:.2g} (x_min {f.x_min:.4g}, p_gof {f.gof_p:.2g})"
             )
+            # Monte Carlo precision of the p-value: sqrt(p (1 - p) / B) (Clauset et al. 2009, sec. 4.1)
+            ctx.record(f"gof_n_used_{var}", int(f.gof_n))
+            ctx.record(f"gof_p_se_{var}", float(f.gof_p_se))
     n_out = int((res.faults["under_displaced"] | res.faults["over_displaced"]).sum())
     used = res.fits[p["residual_model"]].n
     ctx.info(f"{used} {p['unit']}(s) fitted; {n_out} trace(s) flagged as D-L outliers.")
@@ -164,10 +169,13 @@ TOOL = Tool(
         Param(
             "bootstrap_n",
             int,
-            1000,
-            "Bootstrap resamples for the confidence intervals of exponent and gamma.",
+            None,
+            "Bootstrap resamples for the confidence intervals of exponent and gamma, used exactly when "
+            "given. Default: 1000 up to 2000 faults, then 2e6 / n, never fewer than 200 (the number "
+            "used is in bootstrap_n_used).",
             min=10,
             max=100000,
+            nullable=True,
         ),
         Param(
             "ci_level",
@@ -224,10 +232,14 @@ TOOL = Tool(
         Param(
             "gof_n",
             int,
-            1000,
-            "Bootstrap data sets for the power-law goodness-of-fit p-value (0 skips it).",
+            None,
+            "Bootstrap data sets for the power-law goodness-of-fit p-value, used exactly when given "
+            "(0 skips it). Default: 1000 up to 500 values, then a fixed budget of 1e8 KS evaluations, "
+            "never fewer than 100 (p to about +-0.05); gof_n_used and the standard error gof_p_se are "
+            "reported.",
             min=0,
             max=100000,
+            nullable=True,
         ),
         Param("min_tail", int, 5, "Fewest values in a power-law tail when choosing x_min.", min=2),
         Param(
@@ -253,14 +265,15 @@ TOOL = Tool(
         "Fits D = gamma L^n in log-log space to maximum throw (or dip-slip displacement) against "
         "length, per trace or per linked system, by ordinary least squares, reduced major axis "
         "(Sokal & Rohlf) and the errors-in-variables line of York et al. (2004) using the throw "
-        "errors, with seeded bootstrap percentile intervals for n and gamma. Censored faults are "
+        "errors, with seeded bootstrap percentile intervals for n and gamma (the number of resamples "
+        "adapted to the population size unless bootstrap_n is given). Censored faults are "
         "left out unless include_censored is set. The population is compared with published D/L "
         "ranges (Schlische et al. 1996; Walsh et al. 2002; Clark & Cox 1996; Cowie & Scholz 1992, "
         "Kim & Sanderson 2005 from memory). Faults whose log residual exceeds outlier_k standard "
         "deviations are flagged under- or over-displaced with a hint. Lengths and maximum throws "
         "are fitted with a power law by maximum likelihood, x_min by the KS distance, a bootstrap "
-        "goodness-of-fit p-value and Vuong likelihood-ratio tests against exponential and "
-        "log-normal (Clauset, Shalizi & Newman 2009), with the effect of censoring and of the "
+        "goodness-of-fit p-value (with its Monte Carlo standard error) and Vuong likelihood-ratio "
+        "tests against exponential and log-normal (Clauset, Shalizi & Newman 2009), with the effect of censoring and of the "
         "detection limit reported. See docs/methods/scaling.md."
     ),
 )

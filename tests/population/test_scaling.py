@@ -508,3 +508,129 @@ def test_tool_wrapper_on_a_hand_built_context(tmp_path):
     assert back.loc[back.model == "ols", "exponent"].iloc[0] == pytest.approx(
         table.loc[table.model == "ols", "exponent"].iloc[0]
     )
+
+
+# ------------------------------------------- replicate counts and vectorised searches
+def test_bootstrap_replicate_rule_and_blocks_equal_a_loop(monkeypatch):
+    # Efron & Tibshirani (1993): resample faults with replacement and refit.
+    # Reference: a plain loop over the resamples of one (B, n) draw, each
+    # fitted by numpy.polyfit; the blocked, vectorised bootstrap (small
+    # blocks forced here) must give the same slopes and intercepts.
+    from faultmap.population import linefit
+
+    rng = np.random.default_rng(41)
+    L = 10 ** _log_lengths(rng, 35)
+    D = 0.03 * L * 10 ** rng.normal(0, 0.2, 35)
+    monkeypatch.setattr(linefit, "_BOOT_BLOCK", 35 * 7)
+    f = fit_line(L, D, model="ols", bootstrap_n=60, seed=9)
+    idx = np.random.default_rng(9).integers(0, 35, size=(60, 35))
+    x, y = np.log10(L), np.log10(D)
+    ref = np.array([np.polyfit(x[i], y[i], 1) for i in idx])
+    assert f.bootstrap_n_used == 60
+    assert np.allclose(f.boot_exponent, ref[:, 0], rtol=1e-10, atol=1e-12)
+    assert np.allclose(f.boot_log10_gamma, ref[:, 1], rtol=1e-10, atol=1e-12)
+    # York: blocks of 7 resamples against one batch (each converges to tol 1e-12)
+    y1 = fit_line(L, D, model="york", disp_err_m=0.1 * D, bootstrap_n=60, seed=9)
+    monkeypatch.setattr(linefit, "_BOOT_BLOCK", 4_000_000)
+    y2 = fit_line(L, D, model="york", disp_err_m=0.1 * D, bootstrap_n=60, seed=9)
+    assert np.allclose(y1.boot_exponent, y2.boot_exponent, rtol=1e-9, equal_nan=True)
+
+
+def test_bootstrap_count_rule():
+    # Our rule: min(1000, max(200, 2e6 // n)) when bootstrap_n is not given
+    # (Efron & Tibshirani 1993: ~200 resamples suffice for a standard error);
+    # a given count is used exactly. A large population: the count, not the time.
+    from faultmap.population.linefit import bootstrap_replicates
+
+    assert bootstrap_replicates(30) == 1000
+    assert bootstrap_replicates(2000) == 1000
+    assert bootstrap_replicates(8000) == 250
+    assert bootstrap_replicates(20_000) == 200
+    assert bootstrap_replicates(20_000, bootstrap_n=57) == 57
+    rng = np.random.default_rng(42)
+    L = 10 ** _log_lengths(rng, 20_000)
+    D = 0.03 * L * 10 ** rng.normal(0, 0.2, 20_000)
+    f = fit_line(L, D, model="ols", seed=1)
+    assert f.bootstrap_n_used == 200
+    small = rng.uniform(100, 5000, 40)
+    a = fit_line(small, 0.03 * small * 10 ** rng.normal(0, 0.2, 40), seed=2)
+    assert a.bootstrap_n_used == 1000
+
+
+def test_scaling_table_reports_replicates_used():
+    rng = np.random.default_rng(43)
+    L = 10 ** rng.uniform(2.5, 4.0, 30)
+    r = analyse_scaling(_faults(L, 0.02 * L * 10 ** rng.normal(0, 0.1, 30)), bootstrap_n=40)
+    fits = r.table[r.table.model != "reference"]
+    assert (fits.bootstrap_n_used == 40).all() and (fits.bootstrap_n_rule == "given").all()
+    r = analyse_scaling(_faults(L, 0.02 * L * 10 ** rng.normal(0, 0.1, 30)))
+    fits = r.table[r.table.model != "reference"]
+    assert (fits.bootstrap_n_used == 1000).all() and (fits.bootstrap_n_rule == "auto").all()
+    assert r.settings["bootstrap_n_used"] == 1000
+
+
+def test_near_larger_search_equals_pairwise_distances():
+    # Reference: the pairwise shapely.distance definition of the hint
+    # "short fault near a larger one" (within near_factor own lengths of a
+    # trace at least twice as long); the STRtree query must agree.
+    from faultmap.population.outliers import _near_larger
+
+    rng = np.random.default_rng(44)
+    n = 300
+    L = 10 ** rng.uniform(2.0, 3.8, n)
+    xy = rng.uniform(0, 3e4, (n, 2))
+    g = _faults(L, 0.02 * L, xy=xy)
+    geoms = np.asarray(g.geometry)
+    k = np.arange(n)
+    got = _near_larger(geoms, L, k, 1.0)
+    ref = np.array(
+        [np.min(shapely.distance(geoms[i], geoms[L >= 2 * L[i]]), initial=np.inf) <= L[i] for i in k]
+    )
+    assert ref.any() and (~ref).any()
+    assert np.array_equal(got, ref)
+
+
+def test_systems_vectorised_equal_a_loop_over_systems():
+    # Definition (docs/methods/scaling.md): a system's summed length, largest
+    # segment throw (its error), any-censored and segment count, one system at
+    # a time as reference.
+    rng = np.random.default_rng(45)
+    n = 200
+    L = 10 ** rng.uniform(2.5, 3.5, n)
+    T = 0.02 * L * 10 ** rng.normal(0, 0.1, n)
+    sid = rng.integers(1, 70, n)
+    cens = rng.random(n) < 0.1
+    g = _faults(L, T, system_id=sid, censored=cens)
+    pop = displacement_population(g, unit="system", system_length="sum", include_censored=True)
+    assert list(pop.unit_id) == list(dict.fromkeys(sid))
+    for _, row in pop.iterrows():
+        m = sid == row.unit_id
+        assert row.n_segments == m.sum()
+        assert row.length_m == pytest.approx(L[m].sum(), rel=1e-12)
+        assert row.max_throw_m == T[m].max()
+        assert row.max_throw_err_m == 0.1 * T[m][np.argmax(T[m])]
+        assert row.censored == cens[m].any()
+        assert row.fault_ids == ",".join(str(i + 1) for i in np.flatnonzero(m))
+
+
+def test_tool_records_replicates_and_gof_precision():
+    # run_info carries the counts used and the p-value's Monte Carlo standard
+    # error sqrt(p (1 - p) / B) (Clauset, Shalizi & Newman 2009, sec. 4.1).
+    from faultmap.population.tool import TOOL
+    from faultmap.runner import RunContext
+
+    g = _population_with_outliers()
+    ctx = RunContext(quiet=True, echo=lambda msg: None)
+    ctx.crs = g.crs
+    ctx.faults = g
+    p = TOOL.resolve_params({"gof_n": 20}, where="[scaling]")
+    assert p["bootstrap_n"] is None  # default: the automatic rule
+    ctx.current_tool = "scaling"
+    TOOL.run(ctx, p)
+    rec = ctx.records
+    assert rec["scaling.bootstrap_n_used"] == 1000 and rec["scaling.bootstrap_n_rule"] == "auto"
+    table = ctx.layers["scaling"]
+    for var in ("length_m", "max_throw_m"):
+        row = table[(table.model == "power_law") & (table.variable == var)].iloc[0]
+        assert rec[f"scaling.gof_n_used_{var}"] == 20 == row.gof_n_used
+        assert rec[f"scaling.gof_p_se_{var}"] == pytest.approx(np.sqrt(row.gof_p * (1 - row.gof_p) / 20))

@@ -295,3 +295,88 @@ def test_size_figure(tmp_path):
     out = tmp_path / "sizes.png"
     fig.savefig(out, dpi=150)
     assert out.stat().st_size > 10_000
+
+
+# ------------------------------------------- replicate counts and Monte Carlo precision
+def test_gof_p_value_reports_its_binomial_standard_error():
+    # Clauset, Shalizi & Newman (2009) sec. 4.1: p is a fraction of B
+    # independent synthetic sets, so its Monte Carlo standard error is
+    # sqrt(p (1 - p) / B), at most 1 / (2 sqrt(B)) (p = 0.5).
+    from faultmap.population.powerlaw_gof import gof_p_se
+
+    x = _mixed_sample(21, n_tail=120, n_body=40)
+    f = fit_power_law(x, gof_n=64, seed=4, compare=False)
+    assert f.gof_n == 64 and f.gof_rule == "given"
+    assert f.gof_p_se == pytest.approx(np.sqrt(f.gof_p * (1.0 - f.gof_p) / 64), rel=1e-12)
+    assert gof_p_se(0.5, 100) == pytest.approx(1.0 / (2.0 * np.sqrt(100)))
+    assert np.isnan(gof_p_se(np.nan, 100)) and np.isnan(gof_p_se(0.3, 0))
+    # the table carries the count asked for, the count used and the error
+    pop = pd.DataFrame({"length_m": x, "max_throw_m": 0.03 * x})
+    row = analyse_sizes(pop, gof_n=64, seed=4).table.iloc[0]
+    assert row.gof_n == 64 and row.gof_n_used == 64 and row.gof_n_rule == "given"
+    assert row.gof_p_se == pytest.approx(np.sqrt(row.gof_p * (1.0 - row.gof_p) / 64), rel=1e-12)
+
+
+def test_gof_replicate_rule_keeps_small_samples_and_bounds_large_ones():
+    # Our rule: min(1000, max(100, 1e8 // (n C))), C the x_min candidates
+    # (200 by default); the floor B = 100 = 1 / (4 eps^2) for eps = 0.05
+    # (Clauset et al. 2009, sec. 4.1). A given gof_n is used exactly.
+    from faultmap.population.powerlaw_gof import gof_replicates
+
+    assert gof_replicates(300) == 1000
+    assert gof_replicates(500) == 1000
+    assert gof_replicates(2000) == 250
+    assert gof_replicates(20_000) == 100
+    assert gof_replicates(20_000, gof_n=37) == 37
+    assert gof_replicates(50, gof_n=0) == 0
+    # few candidates: more sets fit in the budget, up to the cap
+    assert gof_replicates(2000, max_candidates=50) == 1000
+    # small samples: the automatic rule gives the former default, same numbers
+    x = _mixed_sample(22, n_tail=150, n_body=50)
+    a = fit_power_law(x, seed=5, compare=False)
+    b = fit_power_law(x, gof_n=1000, seed=5, compare=False)
+    assert a.gof_n == b.gof_n == 1000 and a.gof_rule == "auto"
+    assert a.gof_p == b.gof_p
+
+
+def test_large_population_uses_the_replicate_rule():
+    # 20 000 values: the automatic rule gives 100 synthetic sets (the floor,
+    # Clauset et al. 2009 sec. 4.1: p to about +-0.05); the count, not the
+    # time, is checked. The fit itself still recovers alpha (eq. 3.1).
+    rng = np.random.default_rng(23)
+    x = _power_law_sample(rng, 20_000, 2.5, 1.0)
+    f = fit_power_law(x, seed=1)
+    assert f.gof_n == 100 and f.gof_rule == "auto"
+    assert 0.0 <= f.gof_p <= 1.0
+    assert f.gof_p_se == pytest.approx(np.sqrt(f.gof_p * (1.0 - f.gof_p) / 100), abs=1e-15)
+    assert abs(f.alpha - 2.5) < 4 * f.se
+
+
+def test_ks_scan_of_many_rows_equals_a_loop_over_rows(monkeypatch):
+    # Definition (Clauset et al. 2009 sec. 3.3): for every row, MLE alpha and
+    # KS distance at each candidate, keep the smallest distance. The batched
+    # scan (candidate groups on their own tails, small blocks forced here)
+    # must give the numbers of a plain per-row loop.
+    from faultmap.population import powerlaw_fit as plf
+
+    monkeypatch.setattr(plf, "_CHUNK_ELEMS", 997)
+    monkeypatch.setattr(plf, "_CAND_GROUP", 3)
+    rng = np.random.default_rng(24)
+    X = np.sort(
+        np.vstack([_mixed_sample(s, n_tail=90, n_body=30) for s in range(5)] + [rng.random(120) + 1]), axis=1
+    )
+    pos = plf._candidate_positions(X.shape[1], 5, 40)
+    xm, a, d, nt = plf._scan_sorted(X, pos)
+    for r in range(X.shape[0]):
+        best = (np.inf, np.nan, np.nan)
+        for p in pos:
+            if p > 0 and X[r, p] == X[r, p - 1]:
+                continue
+            ar, _, _ = power_law_mle(X[r], X[r, p])
+            dr = ks_distance(X[r], X[r, p], ar)
+            if dr < best[0]:
+                best = (dr, X[r, p], ar)
+        assert xm[r] == best[1]
+        assert a[r] == pytest.approx(best[2], rel=1e-12)
+        assert d[r] == pytest.approx(best[0], rel=1e-12)
+        assert nt[r] == int(np.sum(X[r] >= xm[r]))
