@@ -12,7 +12,7 @@ from __future__ import annotations
 import geopandas as gpd
 import numpy as np
 import pandas as pd
-from scipy import stats
+from scipy import special
 
 from faultmap.errors import InputError, ParameterError
 from faultmap.hazard.inputs import _col, _compact, _ids_text, _require, _selected
@@ -21,6 +21,103 @@ from faultmap.hazard.magnitudes import displacement_from_magnitude, get_relation
 __all__ = ["slip_rate_draws", "slip_rates"]
 
 _PCT = (16.0, 50.0, 84.0)
+
+
+#: Draws held in memory at once (faults x draws) while slip rates are summarised: about 8 MB per array.
+_CHUNK_DRAWS = 1_000_000
+
+
+def _truncnorm_ppf_above(q: np.ndarray, a: np.ndarray) -> np.ndarray:
+    """Return the quantiles ``q`` of a standard normal truncated below at ``a`` (one per row, shape (n, 1)).
+
+    The arithmetic of ``scipy.stats.truncnorm`` (``_ppf`` with ``b = inf``), element by element, so the
+    draws are the same bits as ``truncnorm.rvs``; the terms that depend on ``a`` alone are computed once
+    per row instead of once per draw.
+    """
+    a = np.broadcast_to(a, (q.shape[0], 1))
+    # log Gaussian mass of [a, inf): scipy's "central" case for a <= 0, its mirrored left case for a > 0
+    mass = np.empty(a.shape)
+    above = a > 0
+    with np.errstate(divide="ignore"):
+        mass[~above] = special.log1p(-special.ndtr(a[~above]) - special.ndtr(-np.inf))
+        if above.any():
+            lo = special.log_ndtr(-a[above])
+            hi = special.log_ndtr(np.full(lo.shape, -np.inf))
+            mass[above] = np.real(special.logsumexp([lo, hi + np.pi * 1j], axis=0))  # log(exp(lo) - exp(hi))
+    out = np.empty(q.shape)
+    left = a[:, 0] < 0  # as scipy: a = -0.0 takes the right-tail branch
+    if left.any():
+        ql, al, ml = q[left], a[left], mass[left]
+        with np.errstate(divide="ignore"):
+            x = special.logsumexp([np.broadcast_to(special.log_ndtr(al), ql.shape), np.log(ql) + ml], axis=0)
+        out[left] = special.ndtri_exp(x)
+    if not left.all():
+        qr, mr = q[~left], mass[~left]
+        with np.errstate(divide="ignore"):
+            x = special.logsumexp(
+                [np.broadcast_to(special.log_ndtr(-np.inf), qr.shape), np.log1p(-qr) + mr], axis=0
+            )
+        out[~left] = -special.ndtri_exp(x)
+    return out
+
+
+def _draw_chunks(
+    throw_m, throw_err_m, age_ka, age_err_ka, dip_deg, *, dip_range_deg: float, n_draws: int, seed: int,
+    chunk_draws: int = _CHUNK_DRAWS,
+):
+    """Yield ``(rows, draws)`` for consecutive blocks of faults; together they are :func:`slip_rate_draws`.
+
+    Each of the three random streams (throw uniforms, age normals, dip uniforms) is drawn in row-major
+    order over all faults, as one ``(n, n_draws)`` call would; the blocks continue each stream where the
+    previous block left it, so the values are the same as drawing everything at once, with memory
+    bounded by ``chunk_draws`` values per array.
+    """
+    throw = np.asarray(throw_m, float)[:, None]
+    terr = np.asarray(throw_err_m, float)[:, None]
+    age = np.asarray(age_ka, float)[:, None]
+    aerr = np.asarray(age_err_ka, float)[:, None]
+    dip = np.asarray(dip_deg, float)[:, None]
+    n = throw.shape[0]
+    n_draws = int(n_draws)
+    rows_per = max(1, int(chunk_draws) // max(n_draws, 1))
+    blocks = [slice(s, min(s + rows_per, n)) for s in range(0, n, rows_per)]
+
+    has_err = np.isfinite(terr) & (terr > 0)
+    scale = np.where(has_err, terr, 1.0)
+    loc = np.where(np.isfinite(throw), throw, 0.0)
+    a = -loc / scale
+    cv = np.where(np.isfinite(aerr) & (aerr > 0), aerr / age, 0.0)
+    s_ln = np.sqrt(np.log1p(cv**2))
+    lo = np.clip(dip - dip_range_deg, 1.0, 90.0)
+    hi = np.clip(dip + dip_range_deg, 1.0, 90.0)
+    lo = np.minimum(lo, dip)
+
+    # the three streams of one generator: uniforms (one 64-bit output each), then normals (a variable
+    # number of outputs each: found by drawing them once), then uniforms
+    rng_t = np.random.default_rng(seed)
+    rng_a = np.random.default_rng(seed)
+    rng_a.bit_generator.advance(n * n_draws)
+    rng_d = np.random.default_rng(seed)
+    rng_d.bit_generator.state = rng_a.bit_generator.state
+    for b in blocks:
+        rng_d.standard_normal((b.stop - b.start, n_draws))
+    for b in blocks:
+        shape = (b.stop - b.start, n_draws)
+        q = rng_t.uniform(size=shape)
+        t_draw = _truncnorm_ppf_above(q, a[b]) * scale[b] + loc[b]
+        t_draw = np.where(has_err[b], t_draw, throw[b])
+        age_draw = age[b] * np.exp(s_ln[b] * rng_a.standard_normal(shape))
+        dip_draw = lo[b] + (hi[b] - lo[b]) * rng_d.random(shape)
+        rad = np.radians(dip_draw)
+        vert = t_draw / age_draw
+        yield b, {
+            "vert": vert,
+            "horiz": vert / np.tan(rad),
+            "net": vert / np.sin(rad),
+            "throw_m": t_draw,
+            "age_ka": age_draw,
+            "dip_deg": dip_draw,
+        }
 
 
 def slip_rate_draws(
@@ -64,43 +161,17 @@ def slip_rate_draws(
     ``age_ka`` and coefficient of variation ``age_err_ka / age_ka``; dip ~
     uniform. Vertical rate = T / t; horizontal (heave, extension) rate =
     T / (t tan dip); net dip-slip rate = T / (t sin dip) (geometry,
-    derived).
+    derived). The throw, age and dip draws come, in that order, from one
+    generator seeded with ``seed``, each over all faults in row order.
     """
-    throw = np.asarray(throw_m, float)[:, None]
-    terr = np.asarray(throw_err_m, float)[:, None]
-    age = np.asarray(age_ka, float)[:, None]
-    aerr = np.asarray(age_err_ka, float)[:, None]
-    dip = np.asarray(dip_deg, float)[:, None]
-    n = throw.shape[0]
-    rng = np.random.default_rng(seed)
-    shape = (n, int(n_draws))
-
-    has_err = np.isfinite(terr) & (terr > 0)
-    scale = np.where(has_err, terr, 1.0)
-    loc = np.where(np.isfinite(throw), throw, 0.0)
-    a = -loc / scale
-    t_draw = stats.truncnorm.rvs(a, np.inf, loc=loc, scale=scale, size=shape, random_state=rng)
-    t_draw = np.where(has_err, t_draw, throw)
-
-    cv = np.where(np.isfinite(aerr) & (aerr > 0), aerr / age, 0.0)
-    s_ln = np.sqrt(np.log1p(cv**2))
-    age_draw = age * np.exp(s_ln * rng.standard_normal(shape))
-
-    lo = np.clip(dip - dip_range_deg, 1.0, 90.0)
-    hi = np.clip(dip + dip_range_deg, 1.0, 90.0)
-    lo = np.minimum(lo, dip)
-    dip_draw = lo + (hi - lo) * rng.random(shape)
-    rad = np.radians(dip_draw)
-
-    vert = t_draw / age_draw
-    return {
-        "vert": vert,
-        "horiz": vert / np.tan(rad),
-        "net": vert / np.sin(rad),
-        "throw_m": t_draw,
-        "age_ka": age_draw,
-        "dip_deg": dip_draw,
-    }
+    n = np.asarray(throw_m).shape[0]
+    out = {k: np.empty((n, int(n_draws))) for k in ("vert", "horiz", "net", "throw_m", "age_ka", "dip_deg")}
+    for b, d in _draw_chunks(
+        throw_m, throw_err_m, age_ka, age_err_ka, dip_deg, dip_range_deg=dip_range_deg, n_draws=n_draws, seed=seed
+    ):
+        for k, v in d.items():
+            out[k][b] = v
+    return out
 
 
 def slip_rates(
@@ -225,16 +296,41 @@ def slip_rates(
     ok = ~no_age & ~no_throw
     dip = _col(sel, "dip_deg")
     cols: dict[str, np.ndarray] = {}
-    draws = slip_rate_draws(
-        np.where(ok, throw, np.nan), terr, np.where(ok, age, 1.0), aerr, np.where(np.isfinite(dip), dip, 60.0),
-        dip_range_deg=dip_range_deg, n_draws=n_draws, seed=seed,
-    ) if n else None
-    for comp in ("vert", "horiz", "net"):
-        if n:
-            p = np.percentile(draws[comp], _PCT, axis=1)
-            p[:, ~ok] = np.nan
-        else:
-            p = np.empty((3, 0))
+    # single-event displacement for the recurrence (warnings about it come after the rate flags)
+    ev = np.full(n, np.nan)
+    if event_displacement_m is not None:
+        ev = np.broadcast_to(np.asarray(event_displacement_m, float), (n,)).copy()
+        if np.any(np.isfinite(ev) & (ev <= 0)):
+            raise ParameterError("event_displacement_m must be > 0")
+    src = np.where(np.isfinite(ev), "user", "")
+    rel = get_relation("ad_on_m_wc94")
+    mag = np.full(n, np.nan) if magnitude_for_displacement is None else np.asarray(magnitude_for_displacement, float)
+    use_rel = ~np.isfinite(ev) & np.isfinite(mag)
+    ev = np.where(use_rel, displacement_from_magnitude(mag, key=rel.key), ev)
+    src = np.where(use_rel, rel.key, src)
+    rec = np.full((3, n), np.nan)
+    has_rec = ok & np.isfinite(ev)
+    pct = {comp: np.full((3, n), np.nan) for comp in ("vert", "horiz", "net")}
+    if n:
+        # the draws, block by block of faults (the same values as drawing all at once; bounded memory)
+        rng_rec = np.random.default_rng(None if seed is None else seed + 1) if has_rec.any() else None
+        logd_mean = np.log10(np.where(np.isfinite(ev), ev, 1.0))[:, None]
+        logd_sigma = np.where(use_rel, rel.sigma, 0.0)[:, None]
+        for b, draws in _draw_chunks(
+            np.where(ok, throw, np.nan), terr, np.where(ok, age, 1.0), aerr, np.where(np.isfinite(dip), dip, 60.0),
+            dip_range_deg=dip_range_deg, n_draws=n_draws, seed=seed,
+        ):
+            for comp in pct:
+                pct[comp][:, b] = np.percentile(draws[comp], _PCT, axis=1)
+            if rng_rec is not None:
+                logd = logd_mean[b] + logd_sigma[b] * rng_rec.standard_normal((b.stop - b.start, n_draws))
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    r = (10.0**logd) * 1000.0 / draws["net"]  # m / (mm/yr) * 1000 = yr
+                rec[:, b] = np.percentile(r, _PCT, axis=1)
+        if rng_rec is not None:
+            rec[:, ~has_rec] = np.nan
+    for comp, p in pct.items():
+        p[:, ~ok] = np.nan
         cols[f"slip_rate_{comp}_mm_yr"] = p[1]
         cols[f"slip_rate_{comp}_p16_mm_yr"] = p[0]
         cols[f"slip_rate_{comp}_p84_mm_yr"] = p[2]
@@ -270,31 +366,11 @@ def slip_rates(
         )
     rate_flag = [";".join(f) if f else "ok" for f in flags]
 
-    # ---- recurrence ----------------------------------------------------------
-    ev = np.full(n, np.nan)
-    if event_displacement_m is not None:
-        ev = np.broadcast_to(np.asarray(event_displacement_m, float), (n,)).copy()
-        if np.any(np.isfinite(ev) & (ev <= 0)):
-            raise ParameterError("event_displacement_m must be > 0")
-    src = np.where(np.isfinite(ev), "user", "")
-    rel = get_relation("ad_on_m_wc94")
-    mag = np.full(n, np.nan) if magnitude_for_displacement is None else np.asarray(magnitude_for_displacement, float)
-    use_rel = ~np.isfinite(ev) & np.isfinite(mag)
-    ev = np.where(use_rel, displacement_from_magnitude(mag, key=rel.key), ev)
-    src = np.where(use_rel, rel.key, src)
+    # ---- recurrence (drawn above with the rates) -------------------------------
     if (use_rel & ok).any():
         warns += range_warnings(
             rel.key, mag[use_rel & ok], labels=[f"fault {i} (recurrence)" for i in ids[use_rel & ok]]
         )
-    rec = np.full((3, n), np.nan)
-    has_rec = ok & np.isfinite(ev)
-    if has_rec.any():
-        rng = np.random.default_rng(None if seed is None else seed + 1)
-        logd = np.log10(np.where(np.isfinite(ev), ev, 1.0))[:, None] + np.where(use_rel, rel.sigma, 0.0)[:, None] * rng.standard_normal((n, n_draws))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            r = (10.0**logd) * 1000.0 / draws["net"]  # m / (mm/yr) * 1000 = yr
-        rec = np.percentile(r, _PCT, axis=1)
-        rec[:, ~has_rec] = np.nan
 
     table = pd.DataFrame(
         {
