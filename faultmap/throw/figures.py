@@ -405,7 +405,9 @@ def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols
         ax.set_ylabel("throw (m)")
         ax.axhline(0, color="0.6", lw=0.6)
         if handles:
-            ax.legend(handles=handles, fontsize=7, loc="upper right", framealpha=0.85)
+            # "best" scans every vertex of the drawn lines: only for the small systems
+            few = sp is None or len(sp["segments"]) <= max_legend_segments
+            ax.legend(handles=handles, fontsize=7, loc="best" if few else "upper right", framealpha=0.85)
     note = shown_note(len(sys_ids), n_systems, "linked systems", "the largest by summed maximum throw")
     fig.suptitle(f"Throw along linked fault systems ({note})", fontsize=11)
     fig.tight_layout(rect=(0, 0, 1, 1 - min(0.1, 0.45 / fig.get_figheight())))
