@@ -47,36 +47,69 @@ def _axis_unit_vector(lines: np.ndarray, weights: np.ndarray) -> np.ndarray:
     return np.array([math.cos(theta), math.sin(theta)])
 
 
-def _connected(members: list[int], adj: np.ndarray) -> bool:
-    todo, seen = [members[0]], {members[0]}
-    mset = set(members)
-    while todo:
-        k = todo.pop()
-        for j in np.flatnonzero(adj[k]):
-            j = int(j)
-            if j in mset and j not in seen:
-                seen.add(j)
-                todo.append(j)
-    return len(seen) == len(mset)
+def _neighbours(pairs: tuple[np.ndarray, np.ndarray], n: int) -> list[np.ndarray]:
+    """Neighbour lists (ascending, no self-links) from the index pairs of an STRtree query."""
+    i, j = np.asarray(pairs[0], np.int64), np.asarray(pairs[1], np.int64)
+    keep = i != j
+    i, j = i[keep], j[keep]
+    key = np.unique(np.minimum(i, j) * n + np.maximum(i, j))  # symmetric, each link once
+    a, b = key // n, key % n
+    src = np.r_[a, b]
+    dst = np.r_[b, a]
+    order = np.lexsort((dst, src))
+    src, dst = src[order], dst[order]
+    starts = np.searchsorted(src, np.arange(n + 1))
+    return [dst[starts[k] : starts[k + 1]] for k in range(n)]
 
 
-def _components(adj: np.ndarray) -> list[list[int]]:
-    n = adj.shape[0]
-    label = -np.ones(n, int)
-    comps = []
-    for i in range(n):
-        if label[i] >= 0:
-            continue
-        todo, comp = [i], []
-        label[i] = len(comps)
-        while todo:
-            k = todo.pop()
-            comp.append(k)
-            for j in np.flatnonzero(adj[k] & (label < 0)):
-                label[j] = len(comps)
-                todo.append(int(j))
-        comps.append(sorted(comp))
+def _components(nbrs: list[np.ndarray]) -> list[list[int]]:
+    """Return the connected components, each sorted, in the order of their smallest member."""
+    from scipy.sparse import csr_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    n = len(nbrs)
+    indptr = np.r_[0, np.cumsum([len(v) for v in nbrs])]
+    indices = np.concatenate(nbrs) if n else np.zeros(0, np.int64)
+    graph = csr_matrix((np.ones(indices.size, np.int8), indices, indptr), shape=(n, n))
+    _, label = connected_components(graph, directed=False)
+    order = np.argsort(label, kind="stable")
+    cuts = np.flatnonzero(np.diff(label[order])) + 1
+    comps = [c.tolist() for c in np.split(order, cuts)] if n else []
+    comps.sort(key=lambda c: c[0])
     return comps
+
+
+def _find(parent: dict[int, int], x: int) -> int:
+    """Root of ``x`` in a union-find forest (path halving)."""
+    while parent[x] != x:
+        parent[x] = parent[parent[x]]
+        x = parent[x]
+    return x
+
+
+def _connected_runs(order: np.ndarray, nbrs: list[np.ndarray]):
+    """Every run ``order[i0:i1]`` of two or more faults whose links connect it, by i0 then i1.
+
+    The run grows one fault at a time while a union-find counts its connected parts: each run costs
+    its new fault's links, not a search of the whole run.
+    """
+    k = len(order)
+    for i0 in range(k):
+        parent: dict[int, int] = {}
+        parts = 0
+        for i1 in range(i0 + 1, k + 1):
+            v = int(order[i1 - 1])
+            parent[v] = v
+            parts += 1
+            for j in nbrs[v]:
+                j = int(j)
+                if j in parent:
+                    rv, rj = _find(parent, v), _find(parent, j)
+                    if rv != rj:
+                        parent[rj] = rv
+                        parts -= 1
+            if i1 - i0 >= 2 and parts == 1:
+                yield i0, i1
 
 
 def rupture_scenarios(
@@ -176,31 +209,31 @@ def rupture_scenarios(
     # ---- member sets ---------------------------------------------------
     sets: list[tuple[str, tuple[int, ...]]] = [("segment", (i,)) for i in range(n)]
     seen = {frozenset(s) for _, s in sets}
-    for sid in pd.unique(systems):
-        members = tuple(int(i) for i in np.flatnonzero(systems == sid))
+    # systems in order of first appearance, members ascending (one sort, not one scan per system)
+    by_sys = np.argsort(systems, kind="stable")
+    cuts = np.flatnonzero(np.diff(systems[by_sys])) + 1
+    groups = sorted(np.split(by_sys, cuts) if n else [], key=lambda g: g[0])
+    for g in groups:
+        members = tuple(int(i) for i in g)
         if len(members) > 1 and frozenset(members) not in seen:
             sets.append(("system", members))
             seen.add(frozenset(members))
     if link_gap_m is not None and n > 1:
         tree = shapely.STRtree(lines)
-        pairs = tree.query(lines, predicate="dwithin", distance=float(link_gap_m))
-        adj = np.zeros((n, n), bool)
-        adj[pairs[0], pairs[1]] = True
-        np.fill_diagonal(adj, False)
-        for comp in _components(adj):
+        nbrs = _neighbours(tree.query(lines, predicate="dwithin", distance=float(link_gap_m)), n)
+        for comp in _components(nbrs):
             if len(comp) < 2:
                 continue
             comp_arr = np.asarray(comp)
             axis = _axis_unit_vector(lines[comp_arr], length_m[comp_arr])
             cent = shapely.get_coordinates(shapely.centroid(lines[comp_arr]))
             order = comp_arr[np.argsort(cent @ axis, kind="stable")]
-            for i0 in range(len(order)):
-                for i1 in range(i0 + 2, len(order) + 1):
-                    members = tuple(sorted(int(k) for k in order[i0:i1]))
-                    if frozenset(members) in seen or not _connected(list(members), adj):
-                        continue
-                    sets.append(("linked", members))
-                    seen.add(frozenset(members))
+            for i0, i1 in _connected_runs(order, nbrs):
+                members = tuple(sorted(int(k) for k in order[i0:i1]))
+                if frozenset(members) in seen:
+                    continue
+                sets.append(("linked", members))
+                seen.add(frozenset(members))
 
     # ---- geometry of each scenario -------------------------------------
     m = len(sets)
