@@ -10,6 +10,7 @@ import hashlib
 import os
 import shutil
 import sys
+import time
 import uuid
 import warnings as _warnings
 from collections.abc import Iterable
@@ -156,6 +157,10 @@ class RunResult:
     warnings: list[str]
     run_info: pd.DataFrame
     results: dict
+    #: Wall time in seconds of loading the inputs (``load``), of each tool's run, and of writing the
+    #: GeoPackage with ``run_info`` and input checksums (``write``), in run order. Not in ``run_info``:
+    #: outputs record what was computed, and stay comparable between runs.
+    time_s: dict = field(default_factory=dict)
 
 
 def file_checksum(path: Path, *, full_limit: int = 2 * 1024**3) -> str:
@@ -373,7 +378,9 @@ def run_tools(
         import matplotlib
 
         matplotlib.use("Agg")
+        t0 = time.perf_counter()
         _load_inputs(ctx, inputs, needed)
+        time_s: dict[str, float] = {"load": time.perf_counter() - t0}
         for s in skipped:
             ctx.info(f"skipped {s}.")
         implicit = [n for n in order if n not in names and n not in params]
@@ -381,9 +388,11 @@ def run_tools(
             ctx.info(f"also ran {', '.join(implicit)} with default parameters (required by the tools asked for).")
         for n in order:
             ctx.current_tool = n
+            t0 = time.perf_counter()
             with _warnings.catch_warnings(record=True) as caught:
                 _warnings.simplefilter("always", FaultmapWarning)
                 registry[n].run(ctx, resolved[n])
+            time_s[n] = time.perf_counter() - t0
             for w in caught:
                 if issubclass(w.category, FaultmapWarning):
                     ctx.warn(str(w.message))
@@ -392,10 +401,12 @@ def run_tools(
         ctx.current_tool = ""
         if ctx.crs is None:
             raise InputError("no input gave a CRS: give faults or a DEM.")
+        t0 = time.perf_counter()
         run_info = _run_info(ctx, order, resolved, inputs, out)
         layers = {k: v for k, v in ctx.layers.items() if v is not None}
         layers["run_info"] = run_info
         write_gpkg(out, layers, crs=ctx.crs, overwrite=overwrite)
+        time_s["write"] = time.perf_counter() - t0
         written: list[Path] = []
         if stage is not None and ctx._figures:
             fig_dir.mkdir(exist_ok=True)
@@ -407,5 +418,13 @@ def run_tools(
     finally:
         if stage is not None and stage.exists():
             shutil.rmtree(stage, ignore_errors=True)
-    return RunResult(gpkg=out, layers=layers, figures=written, warnings=list(ctx.warnings), run_info=run_info, results=ctx.results)
+    return RunResult(
+        gpkg=out,
+        layers=layers,
+        figures=written,
+        warnings=list(ctx.warnings),
+        run_info=run_info,
+        results=ctx.results,
+        time_s=time_s,
+    )
 
