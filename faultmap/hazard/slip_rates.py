@@ -104,8 +104,10 @@ def _draw_chunks(
     for b in blocks:
         shape = (b.stop - b.start, n_draws)
         q = rng_t.uniform(size=shape)
-        t_draw = _truncnorm_ppf_above(q, a[b]) * scale[b] + loc[b]
-        t_draw = np.where(has_err[b], t_draw, throw[b])
+        t_draw = np.repeat(throw[b], n_draws, axis=1)  # a throw without an error is drawn as exact
+        e = has_err[b, 0]
+        if e.any():
+            t_draw[e] = _truncnorm_ppf_above(q[e], a[b][e]) * scale[b][e] + loc[b][e]
         age_draw = age[b] * np.exp(s_ln[b] * rng_a.standard_normal(shape))
         dip_draw = lo[b] + (hi[b] - lo[b]) * rng_d.random(shape)
         rad = np.radians(dip_draw)
@@ -320,13 +322,18 @@ def slip_rates(
             np.where(ok, throw, np.nan), terr, np.where(ok, age, 1.0), aerr, np.where(np.isfinite(dip), dip, 60.0),
             dip_range_deg=dip_range_deg, n_draws=n_draws, seed=seed,
         ):
-            for comp in pct:
-                pct[comp][:, b] = np.percentile(draws[comp], _PCT, axis=1)
+            rows = np.arange(b.start, b.stop)
+            keep = ok[b]  # the other rows' percentiles are not reported
+            if keep.any():
+                for comp in pct:
+                    pct[comp][:, rows[keep]] = np.percentile(draws[comp][keep], _PCT, axis=1)
             if rng_rec is not None:
                 logd = logd_mean[b] + logd_sigma[b] * rng_rec.standard_normal((b.stop - b.start, n_draws))
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    r = (10.0**logd) * 1000.0 / draws["net"]  # m / (mm/yr) * 1000 = yr
-                rec[:, b] = np.percentile(r, _PCT, axis=1)
+                keep = has_rec[b]
+                if keep.any():
+                    with np.errstate(divide="ignore", invalid="ignore"):
+                        r = (10.0 ** logd[keep]) * 1000.0 / draws["net"][keep]  # m / (mm/yr) * 1000 = yr
+                    rec[:, rows[keep]] = np.percentile(r, _PCT, axis=1)
         if rng_rec is not None:
             rec[:, ~has_rec] = np.nan
     for comp, p in pct.items():
