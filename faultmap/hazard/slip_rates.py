@@ -95,9 +95,10 @@ def _draw_chunks(
     # the three streams of one generator: uniforms (one 64-bit output each), then normals (a variable
     # number of outputs each: found by drawing them once), then uniforms
     rng_t = np.random.default_rng(seed)
-    rng_a = np.random.default_rng(seed)
+    rng_a = np.random.default_rng()
+    rng_a.bit_generator.state = rng_t.bit_generator.state
     rng_a.bit_generator.advance(n * n_draws)
-    rng_d = np.random.default_rng(seed)
+    rng_d = np.random.default_rng()
     rng_d.bit_generator.state = rng_a.bit_generator.state
     for b in blocks:
         rng_d.standard_normal((b.stop - b.start, n_draws))
