@@ -58,6 +58,7 @@ def _input_options() -> list[click.Option]:
         click.Option(["--out"], required=True, type=click.Path(dir_okay=False), help="Output GeoPackage (.gpkg)."),
         click.Option(["--figures"], type=click.Path(file_okay=False), help="Folder for figures (optional)."),
         click.Option(["--overwrite"], is_flag=True, help="Replace an existing output."),
+        click.Option(["--no-report"], is_flag=True, help="Do not write NAME_report.html beside the output."),
         click.Option(["--workers"], type=int, help="Run on a local Dask cluster with N workers (faultmap[dask])."),
         click.Option(["--scheduler"], help="Run on an existing Dask scheduler at ADDRESS (faultmap[dask])."),
         click.Option(
@@ -149,6 +150,7 @@ def tool_command(tool: Tool | BrokenTool, state: _State) -> click.Command:
                 params={tool.name: given},
                 figures=kw["figures"],
                 overwrite=kw["overwrite"],
+                report=not kw["no_report"],
                 fields=_parse_fields(kw["fields"]),
                 quiet=state.quiet,
                 engine=engine,

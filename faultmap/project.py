@@ -39,7 +39,7 @@ else:  # pragma: no cover
 
 __all__ = ["read_project", "run_project", "OUTPUT_KEYS", "ENGINE_KEYS"]
 
-OUTPUT_KEYS = {"gpkg": str, "figures": str, "overwrite": bool}
+OUTPUT_KEYS = {"gpkg": str, "figures": str, "overwrite": bool, "report": bool}
 ENGINE_KEYS = {"workers": int, "scheduler": str, "threads": int, "timeout_s": float}
 _PATH_KEYS = {"faults", "dem", "transects", "study_area"}
 
@@ -171,6 +171,7 @@ def run_project(
             params=proj["params"],
             figures=proj["output"].get("figures"),
             overwrite=ow,
+            report=proj["output"].get("report", True),
             fields=proj["fields"],
             quiet=quiet,
             skip_unavailable=steps is None,

@@ -11,7 +11,6 @@ import os
 import shutil
 import sys
 import time
-import uuid
 import warnings as _warnings
 from collections.abc import Iterable
 from dataclasses import dataclass, field
@@ -161,6 +160,10 @@ class RunResult:
     #: GeoPackage with ``run_info`` and input checksums (``write``), in run order. Not in ``run_info``:
     #: outputs record what was computed, and stay comparable between runs.
     time_s: dict = field(default_factory=dict)
+    #: The self-contained HTML report written beside the GeoPackage (None with ``report=False``).
+    report: Path | None = None
+    #: One OGC SLD 1.1 style file per spatial layer, in ``NAME_styles/`` beside the GeoPackage.
+    styles: list[Path] = field(default_factory=list)
 
 
 def file_checksum(path: Path, *, full_limit: int = 2 * 1024**3) -> str:
@@ -292,6 +295,7 @@ def run_tools(
     engine=None,
     tools: dict | None = None,
     echo=None,
+    report: bool = True,
 ) -> RunResult:
     """Run tools (and the tools they require) and write one GeoPackage.
 
@@ -317,17 +321,29 @@ def run_tools(
     skip_unavailable : bool
         Skip tools that are not built or lack inputs (``faultmap run``
         without ``steps``) instead of failing.
+    report : bool
+        Write ``NAME_report.html`` beside the GeoPackage (a self-contained page).
+
+    Notes
+    -----
+    Outputs (GeoPackage, figures, report, one style file per spatial layer in ``NAME_styles/``) are
+    staged under hidden names and placed together by :func:`faultmap.io.outputs.commit_outputs`:
+    a failed or killed run leaves the earlier outputs as they were, and figures always belong to the
+    GeoPackage beside them.
 
     Returns
     -------
     RunResult
     """
-    from faultmap.io.gpkg import check_target, write_gpkg
+    from faultmap.io.gpkg import check_target, stage_gpkg, temporary_name
+    from faultmap.io.outputs import commit_outputs, staged_name
 
     registry = load_tools() if tools is None else tools
     params = {k: dict(v or {}) for k, v in (params or {}).items()}
     inputs = _check_inputs(dict(inputs))
-    out = check_target(out, overwrite=overwrite)
+    sources = [inputs[k] for k in ("faults", "dem", "transects", "study_area") if inputs.get(k)]
+    folders = [figures] if figures is not None else []
+    out = check_target(out, overwrite=overwrite, inputs=sources, folders=folders)
     if engine is None:
         from faultmap.engine import Engine
 
@@ -370,7 +386,8 @@ def run_tools(
             raise OutputError(f"{fig_dir}: exists and is not a folder; name a folder for figures.")
         if not fig_dir.parent.exists():
             raise OutputError(f"{fig_dir}: parent folder {fig_dir.parent} does not exist; create it first.")
-        stage = out.parent / f".{out.stem}.figures.{uuid.uuid4().hex[:8]}.tmp"
+        stage = temporary_name(out, "figures", "")
+    staged: dict[Path, Path] = {}
     try:
         if stage is not None:
             stage.mkdir()
@@ -405,19 +422,24 @@ def run_tools(
         run_info = _run_info(ctx, order, resolved, inputs, out)
         layers = {k: v for k, v in ctx.layers.items() if v is not None}
         layers["run_info"] = run_info
-        write_gpkg(out, layers, crs=ctx.crs, overwrite=overwrite)
-        time_s["write"] = time.perf_counter() - t0
+        staged[out] = stage_gpkg(out, layers, crs=ctx.crs)
         written: list[Path] = []
         if stage is not None and ctx._figures:
-            fig_dir.mkdir(exist_ok=True)
             for name, tmp in ctx._figures.items():
                 dest = fig_dir / name
                 dest.parent.mkdir(parents=True, exist_ok=True)
-                os.replace(tmp, dest)
+                staged[dest] = staged_name(out, dest)
+                shutil.move(tmp, staged[dest])  # into the figures folder (may be another file system)
                 written.append(dest)
+        report_path, styles = _stage_report_and_styles(out, layers, run_info, staged, written, report)
+        commit_outputs(out, staged)
+        time_s["write"] = time.perf_counter() - t0
     finally:
         if stage is not None and stage.exists():
             shutil.rmtree(stage, ignore_errors=True)
+        for tmp in staged.values():  # left only when the run failed before its outputs were placed
+            if tmp.exists():
+                tmp.unlink()
     return RunResult(
         gpkg=out,
         layers=layers,
@@ -426,5 +448,31 @@ def run_tools(
         run_info=run_info,
         results=ctx.results,
         time_s=time_s,
+        report=report_path,
+        styles=styles,
     )
+
+
+def _stage_report_and_styles(out: Path, layers: dict, run_info, staged: dict, figures: list[Path], report: bool):
+    """Render the report and the layer styles into hidden files beside ``out`` (added to ``staged``)."""
+    from faultmap.io.outputs import staged_name
+    from faultmap.report import render_report, sld_for_layers
+
+    report_path = None
+    if report:
+        report_path = out.parent / f"{out.stem}_report.html"
+        html = render_report(layers, run_info, {p.name: staged[p] for p in figures}, title=f"faultmap: {out.stem}")
+        staged[report_path] = staged_name(out, report_path)
+        staged[report_path].write_text(html, encoding="utf-8")
+    styles = []
+    slds = sld_for_layers(layers)
+    if slds:
+        folder = out.parent / f"{out.stem}_styles"
+        folder.mkdir(exist_ok=True)
+        for name, sld in slds.items():
+            dest = folder / f"{name}.sld"
+            staged[dest] = staged_name(out, dest)
+            staged[dest].write_text(sld, encoding="utf-8")
+            styles.append(dest)
+    return report_path, styles
 

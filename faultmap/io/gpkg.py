@@ -61,7 +61,7 @@ def _pid_alive(pid: int) -> bool:
     return True
 
 
-def remove_stale_temporaries(target) -> list[Path]:
+def remove_stale_temporaries(target, folders=()) -> list[Path]:
     """Remove what killed runs left beside ``target``: hidden temporary GeoPackages, journals, figure folders.
 
     A temporary is stale when the process whose id its name carries is gone (names without an id,
@@ -73,10 +73,12 @@ def remove_stale_temporaries(target) -> list[Path]:
         What was removed.
     """
     target = Path(target)
-    removed = []
-    if not target.parent.is_dir():
-        return removed
-    for q in sorted(target.parent.glob(f".{target.stem}.*.tmp*")):
+    removed: list[Path] = []
+    found = set()
+    for folder in {target.parent, *(Path(f) for f in folders)}:
+        if folder.is_dir():
+            found.update(folder.glob(f".{target.stem}.*.tmp*"))
+    for q in sorted(found):
         if not q.exists() and not q.is_symlink():
             continue  # went with its main file
         sidecar = q.name.endswith(("-journal", "-wal", "-shm"))
@@ -100,7 +102,7 @@ def remove_stale_temporaries(target) -> list[Path]:
     return removed
 
 
-def check_target(target, *, overwrite: bool, inputs=()) -> Path:
+def check_target(target, *, overwrite: bool, inputs=(), folders=()) -> Path:
     """Check that ``target`` can be written before any work is done.
 
     Parameters
@@ -111,6 +113,8 @@ def check_target(target, *, overwrite: bool, inputs=()) -> Path:
         Whether an existing file may be replaced.
     inputs : iterable of path, optional
         The run's input files: the output may never be one of them (not even with ``overwrite``).
+    folders : iterable of path, optional
+        Other folders the run writes into (figures): left-overs of killed runs are cleared there too.
 
     Raises
     ------
@@ -136,7 +140,10 @@ def check_target(target, *, overwrite: bool, inputs=()) -> Path:
         raise OutputError(f"{p}: is a folder; name a .gpkg file.")
     if p.exists() and not overwrite:
         raise OutputError(f"{p}: exists already; use --overwrite (or overwrite = true) to replace it.")
-    remove_stale_temporaries(p)
+    from faultmap.io.outputs import recover_outputs
+
+    recover_outputs(p)  # a commit a killed run left half done: back to its earlier outputs, or forward
+    remove_stale_temporaries(p, folders)
     try:
         fd, probe = tempfile.mkstemp(prefix=f".{p.stem}.probe.", suffix=".tmp", dir=p.parent)
         os.close(fd)
@@ -298,9 +305,36 @@ def write_gpkg(target, layers: dict, *, crs, overwrite: bool = False) -> Path:
         Target not writable, CRS changed on writing, or the write failed; the
         earlier file (if any) is left byte-for-byte intact.
     """
+    target = check_target(target, overwrite=overwrite)
+    tmp = stage_gpkg(target, layers, crs=crs)
+    existed = target.exists()
+    try:
+        os.replace(tmp, target)
+    except BaseException as exc:
+        _remove(tmp)
+        if isinstance(exc, OSError):
+            kept = "the earlier result is unchanged" if existed else "nothing was written"
+            raise OutputError(f"{target}: writing failed: {exc.strerror or exc}; {kept}.") from exc
+        raise
+    return target
+
+
+def stage_gpkg(target, layers: dict, *, crs) -> Path:
+    """Write ``layers`` into a checked temporary GeoPackage beside ``target``; return its path.
+
+    The caller moves it into place (:func:`write_gpkg`, or the run's joint commit of all its outputs
+    in :mod:`faultmap.io.outputs`). Checks: the CRS of each geometry layer read back equals ``crs``
+    (a custom CRS is written exactly, see :func:`_pin_crs`) and the file is a conformant GeoPackage.
+
+    Raises
+    ------
+    OutputError
+        The CRS changed on writing, the file is not conformant, or the write failed; no temporary
+        file is left.
+    """
     import pyogrio
 
-    target = check_target(target, overwrite=overwrite)
+    target = Path(target)
     tmp = temporary_name(target, "gpkg", ".gpkg")
     existed = target.exists()
     try:
@@ -325,7 +359,6 @@ def write_gpkg(target, layers: dict, *, crs, overwrite: bool = False) -> Path:
         problems = check_conformance(tmp)
         if problems:
             raise OutputError(f"{target}: the written GeoPackage is not conformant ({problems[0]}); not saved.")
-        os.replace(tmp, target)
     except OutputError:
         _remove(tmp)
         raise
@@ -338,7 +371,7 @@ def write_gpkg(target, layers: dict, *, crs, overwrite: bool = False) -> Path:
         hint = " (if the file is open in a GIS, close it)" if "transaction" in msg.lower() else ""
         kept = "the earlier result is unchanged" if existed else "nothing was written"
         raise OutputError(f"{target}: writing failed: {msg}{hint}; {kept}.") from exc
-    return target
+    return tmp
 
 
 def _remove(p: Path) -> None:

@@ -236,3 +236,23 @@ def test_help_names_numbers_and_choices(cli):
     assert "--station-spacing-m NUMBER" in text
     assert "--min-samples-per-side INTEGER" in text
     assert "--robust-loss [tukey|huber|none]" in text
+
+
+def test_output_naming_the_input_file_is_refused_and_the_input_kept(cli, scene):
+    # Failure reported: --out naming the input fault file, with --overwrite, destroyed the input layer.
+    src = scene["faults"]
+    before = src.read_bytes()
+    res = cli(["prepare", "--faults", str(src), "--out", str(src), "--overwrite"])
+    assert res.exit_code == 2
+    assert "is an input of this run" in res.output and len(res.output.strip().splitlines()) == 1
+    assert src.read_bytes() == before
+
+
+def test_a_run_writes_its_report_and_layer_styles_beside_the_output(cli, scene, tmp_path):
+    out = tmp_path / "res.gpkg"
+    res = cli(["prepare", "--faults", str(scene["faults"]), "--out", str(out), "-q"])
+    assert res.exit_code == 0, res.output
+    assert (tmp_path / "res_report.html").read_text().lstrip().lower().startswith("<!doctype html")
+    assert sorted(p.name for p in (tmp_path / "res_styles").iterdir()) == ["faults.sld"]
+    res = cli(["prepare", "--faults", str(scene["faults"]), "--out", str(out), "--overwrite", "--no-report", "-q"])
+    assert res.exit_code == 0 and not (tmp_path / "res_report.html").exists()  # the older report went too

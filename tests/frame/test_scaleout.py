@@ -335,7 +335,10 @@ def test_failing_worker_stops_the_run_writes_nothing_and_a_rerun_succeeds(tmp_pa
     assert "\n" not in msg.strip()  # one line
     # no partial output: the earlier result is untouched, no figure folder, no temporary files
     assert _sha(out) == before and not figs.exists()
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["dem.tif", "faults.gpkg", "results.gpkg"]
+    # (beside the inputs: the earlier result, its report, styles and the manifest of what it wrote)
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(
+        [".results.manifest.json", "dem.tif", "faults.gpkg", "results.gpkg", "results_report.html", "results_styles"]
+    )
     # in-process the same damage gives the same kind of one-line error
     with pytest.raises(FaultmapError, match="cannot read DEM window"):
         _run(inputs, tmp_path / "other.gpkg", tools=("throw",), params={})
