@@ -343,7 +343,10 @@ def _hazard(s: dict, layers: Mapping, rec: Mapping) -> None:
                        ("preferred_rule", "rule of the preferred magnitude"), ("fault_ids_used", "faults chosen by"),
                        ("mapping_uncertainty_m_used", "mapping uncertainty of the traces (m)")):
         if key in rec:
-            s["facts"].append((label, fmt_num(_num(rec[key]))))
+            value = _num(rec[key])
+            if key.startswith("n_") and isinstance(value, float) and value.is_integer():
+                value = int(value)  # counts print whole
+            s["facts"].append((label, fmt_num(value)))
     zones = _layer(layers, "rupture_zones")
     if zones is not None:
         s["facts"].append(("surface-rupture zones", fmt_num(len(zones))))

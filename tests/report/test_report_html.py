@@ -254,3 +254,13 @@ def test_fmt_pm_and_range():
     assert fmt_pm(12.0, float("nan")) == "12.0"
     assert fmt_range(0.8973, 0.5582, 1.1327) == "0.897 [0.558, 1.13]"
     assert fmt_range(2.0, None, None) == "2.00"
+
+
+def test_counts_print_whole():
+    # a count recorded as text ("4") is shown as 4, not 4.00
+    from faultmap.report.sections import _hazard
+
+    section = {"facts": []}
+    _hazard(section, {}, {"hazard.n_screened": "4", "n_screened": "4", "n_scenarios": "7"})
+    facts = dict(section["facts"])
+    assert facts["faults screened"] == "4" and facts["rupture scenarios"] == "7"
