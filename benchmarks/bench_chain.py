@@ -197,7 +197,6 @@ def child(tif: str, gpkg: str, warm_tif: str, warm_gpkg: str, out_dir: str, prof
     from faultmap.registry import load_tools
 
     out_dir = Path(out_dir)
-    params = {"throw": {}}
     inputs_w = {"faults": warm_gpkg, "faults_layer": "faults", "dem": warm_tif}
     faultmap.run_tools(TOOLS, inputs=inputs_w, out=out_dir / "warm.gpkg", figures=out_dir / "warm_fig", quiet=True)
     t_warm = time.perf_counter() - t0
@@ -212,7 +211,6 @@ def child(tif: str, gpkg: str, warm_tif: str, warm_gpkg: str, out_dir: str, prof
         inputs={"faults": gpkg, "faults_layer": "faults", "dem": tif},
         out=out_dir / "chain.gpkg",
         figures=out_dir / "fig",
-        params=params,
         quiet=True,
         tools=tools,
     )
