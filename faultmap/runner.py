@@ -248,36 +248,101 @@ def _load_inputs(ctx: RunContext, inputs: dict, needed: set[str]) -> None:
         raise CRSError("working CRS is geographic; this is a bug.")
 
 
+#: Libraries whose versions every run records (the numbers depend on them).
+RECORDED_LIBRARIES = ("numpy", "scipy", "pandas", "shapely", "geopandas", "pyproj", "pyogrio", "rasterio",
+                      "numba", "matplotlib")
+
+
+def library_versions() -> dict[str, str]:
+    """Versions of the libraries a run's numbers depend on, GDAL and PROJ included."""
+    from importlib import metadata
+
+    out = {}
+    for name in RECORDED_LIBRARIES:
+        try:
+            out[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:  # pragma: no cover - all are dependencies
+            out[name] = "not installed"
+    try:
+        import rasterio
+
+        out["gdal"] = rasterio.__gdal_version__
+    except Exception:  # noqa: BLE001  # pragma: no cover
+        pass
+    try:
+        import pyproj
+
+        out["proj"] = pyproj.proj_version_str
+    except Exception:  # noqa: BLE001  # pragma: no cover
+        pass
+    return out
+
+
+def _value_text(v) -> str:
+    """Write a run_info value as text: floats to 12 significant digits (no float noise), the rest as str."""
+    if isinstance(v, float) or type(v).__name__ in ("float64", "float32"):
+        return repr(float(f"{float(v):.12g}"))  # 1250.0000000000623 -> 1250.0
+    return str(v)
+
+
+def _shown_path(v, base: Path) -> str:
+    """Show a local path relative to the output's folder (results can be shared without one's folder layout)."""
+    text = str(v)
+    if "://" in text or text.startswith("/vsi"):
+        return text
+    try:
+        return Path(os.path.relpath(Path(text).resolve(), base.resolve())).as_posix()
+    except ValueError:  # another drive (Windows)
+        return Path(text).name
+
+
 def _run_info(ctx: RunContext, order: list[str], params: dict, inputs: dict, out: Path) -> pd.DataFrame:
     from faultmap import __version__
 
+    base = out.parent
     rows: list[tuple[str, str]] = [
         ("faultmap_version", __version__),
         ("run_utc", datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")),
         ("tools", ",".join(order)),
-        ("output", str(out)),
+        ("output", out.name),
+        ("paths", "input paths are relative to the output's folder"),
         ("engine", ctx.engine.describe() if ctx.engine is not None else "in-process, 1 thread(s)"),
         ("working_crs_name", ctx.crs.name if ctx.crs is not None else ""),
         ("working_crs_wkt", ctx.crs.to_wkt() if ctx.crs is not None else ""),
     ]
+    rows += [(f"library.{k}", v) for k, v in library_versions().items()]
+    shown = {}
     for k, v in inputs.items():
-        rows.append((f"input.{k}", str(v)))
         if k in ("faults", "dem", "transects", "study_area"):
+            shown[str(v)] = _shown_path(v, base)
+            shown[str(Path(str(v)).resolve())] = shown[str(v)]
+            rows.append((f"input.{k}", shown[str(v)]))
             p = Path(v)
             if p.is_file():
                 rows.append((f"input.{k}.size_bytes", str(p.stat().st_size)))
                 rows.append((f"input.{k}.checksum", file_checksum(p)))
+        else:
+            rows.append((f"input.{k}", _value_text(v)))
+
+    def _relative(text: str) -> str:
+        for full in sorted(shown, key=len, reverse=True):
+            text = text.replace(full, shown[full])
+        return text
+
     for k, v in ctx.fields.items():
         rows.append((f"field.{k}", str(v)))
     for tool, ps in params.items():
         for k, v in ps.items():
-            rows.append((f"param.{tool}.{k}", "" if v is None else str(v)))
+            rows.append((f"param.{tool}.{k}", "" if v is None else _value_text(v)))
+    recorded = set()
     for k, v in ctx.records.items():
-        rows.append((k, str(v)))
+        rows.append((k, _relative(_value_text(v))))
+        recorded.add(f"{k.split('.', 1)[0]}: {v}")
     for i, n in enumerate(ctx.notices, 1):
-        rows.append((f"notice.{i}", n))
-    for i, w in enumerate(ctx.warnings, 1):
-        rows.append((f"warning.{i}", w))
+        rows.append((f"notice.{i}", _relative(n)))
+    kept = [w for w in ctx.warnings if w not in recorded]  # a recorded text (the hazard caution) once
+    for i, w in enumerate(kept, 1):
+        rows.append((f"warning.{i}", _relative(w)))
     return pd.DataFrame(rows, columns=["key", "value"])
 
 

@@ -407,6 +407,8 @@ def test_tool_runs_in_pipeline_and_writes_layers(tmp_path):
     info = dict(zip(res.run_info["key"], res.run_info["value"], strict=True))
     assert info["hazard.caution"] == CAUTION
     assert any(CAUTION in w for w in res.warnings)
+    # written once in run_info (failure reported: the same caution twice)
+    assert sum(CAUTION in v for v in res.run_info["value"]) == 1
     assert {p.name for p in res.figures} == {MAP_FIGURE, MAGNITUDE_FIGURE}
 
 

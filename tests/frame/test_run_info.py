@@ -1,0 +1,34 @@
+"""run_info: relative paths, library versions, no float noise, nothing twice (reliability issue).
+
+Failures reported: absolute paths leaked a user's folder layout when results were shared; no library
+versions; float noise such as ``1250.0000000000623``; the hazard caution written twice.
+"""
+
+from __future__ import annotations
+
+import re
+
+import pyogrio
+
+from faultmap.runner import _value_text, library_versions
+
+
+def test_value_text_drops_float_noise():
+    assert _value_text(1250.0000000000623) == "1250.0"
+    assert _value_text(65.0) == "65.0" and _value_text(3) == "3" and _value_text("text") == "text"
+    assert float(_value_text(0.1 + 0.2)) == 0.3  # 12 significant digits
+
+
+def test_run_info_paths_versions_and_no_repeats(cli, scene, tmp_path):
+    out = tmp_path / "results" / "res.gpkg"
+    out.parent.mkdir()
+    res = cli(["prepare", "--faults", str(scene["faults"]), "--out", str(out), "-q"])
+    assert res.exit_code == 0, res.output
+    info = pyogrio.read_dataframe(out, layer="run_info")
+    assert info["key"].is_unique
+    kv = dict(zip(info["key"], info["value"], strict=True))
+    assert kv["input.faults"] == "../faults.gpkg" and kv["output"] == "res.gpkg"
+    assert not any(str(tmp_path) in v for v in info["value"])  # no absolute path anywhere (warnings included)
+    for lib in ("numpy", "scipy", "shapely", "pyproj", "gdal", "proj"):
+        assert kv[f"library.{lib}"] == library_versions()[lib] and re.match(r"\d+\.\d+", kv[f"library.{lib}"])
+    assert not [v for v in info["value"] if re.fullmatch(r"-?\d+\.\d{13,}", v)]
