@@ -475,11 +475,16 @@ def run_tools(
                 _warnings.simplefilter("always", FaultmapWarning)
                 registry[n].run(ctx, resolved[n])
             time_s[n] = time.perf_counter() - t0
+            numeric = 0
             for w in caught:
                 if issubclass(w.category, FaultmapWarning):
                     ctx.warn(str(w.message))
+                elif issubclass(w.category, RuntimeWarning):
+                    numeric += 1  # numpy/shapely arithmetic on voids and empty slices: handled, not news
                 else:
                     _warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+            if numeric:
+                ctx.records[f"{n}.numeric_warnings_silenced"] = numeric
         ctx.current_tool = ""
         if ctx.crs is None:
             raise InputError("no input gave a CRS: give faults or a DEM.")

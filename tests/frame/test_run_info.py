@@ -32,3 +32,28 @@ def test_run_info_paths_versions_and_no_repeats(cli, scene, tmp_path):
     for lib in ("numpy", "scipy", "shapely", "pyproj", "gdal", "proj"):
         assert kv[f"library.{lib}"] == library_versions()[lib] and re.match(r"\d+\.\d+", kv[f"library.{lib}"])
     assert not [v for v in info["value"] if re.fullmatch(r"-?\d+\.\d{13,}", v)]
+
+
+def test_numeric_runtime_warnings_do_not_reach_the_terminal(scene, tmp_path, recwarn):
+    # Failure reported: numpy and shapely runtime warnings leaked onto the terminal. They are counted in
+    # run_info instead; other warnings still pass.
+    import warnings
+
+    import numpy as np
+
+    from faultmap.registry import Tool, load_tools
+    from faultmap.runner import run_tools
+
+    def noisy(ctx, p):
+        np.nanmean(np.array([np.nan]))  # "Mean of empty slice"
+        np.array([1.0]) / np.array([0.0])  # divide by zero
+        warnings.warn("a deprecation a user may want to see", DeprecationWarning, stacklevel=1)
+
+    tools = dict(load_tools())
+    tools["noisy"] = Tool("noisy", "Emits warnings.", run=noisy, requires=("prepare",))
+    res = run_tools(["noisy"], inputs={"faults": str(scene["faults"])}, out=tmp_path / "n.gpkg", tools=tools,
+                    quiet=True, echo=lambda m: None)
+    info = dict(zip(res.run_info["key"], res.run_info["value"], strict=True))
+    assert int(info["noisy.numeric_warnings_silenced"]) >= 2
+    assert not [w for w in recwarn if issubclass(w.category, RuntimeWarning)]
+    assert [w for w in recwarn if issubclass(w.category, DeprecationWarning) and "a user may" in str(w.message)]
