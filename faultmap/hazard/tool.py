@@ -49,6 +49,15 @@ def run(ctx, p: dict) -> None:
     ids = _parse_ids(p["fault_ids"])
     ctx.record("fault_ids_used", "active field" if ids is None else ",".join(map(str, ids)))
     ctx.record("link_gap_m_used", "off" if p["link_gap_m"] is None else p["link_gap_m"])
+    from faultmap.hazard.slip_rates import draws_per_fault, percentile_rank_se
+
+    n_draws = p["n_draws"]
+    if n_draws is None:
+        n_sel = len(ids) if ids is not None else int(faults["active"].astype(bool).sum()) if "active" in faults else 0
+        n_draws = draws_per_fault(n_sel)
+        ctx.record("n_draws_rule", f"auto: {n_draws} draws per fault for {n_sel} faults")
+    ctx.record("n_draws_used", n_draws)
+    ctx.record("percentile_level_se_p16", round(percentile_rank_se(0.16, n_draws), 5))
     res = screen_hazard(
         faults,
         fault_ids=ids,
@@ -62,7 +71,7 @@ def run(ctx, p: dict) -> None:
         age_rel_err=p["age_rel_err"],
         age_abs_err_ka=p["age_abs_err_ka"],
         dip_range_deg=p["dip_range_deg"],
-        n_draws=p["n_draws"],
+        n_draws=n_draws,
         seed=p["seed"],
         max_age_ka=p["max_age_ka"],
         max_rate_mm_yr=p["max_rate_mm_yr"],
@@ -135,7 +144,9 @@ TOOL = Tool(
               unit="ka", min=0.0, nullable=True),
         Param("dip_range_deg", float, 10.0, "Dips drawn uniformly within +- this range in the Monte Carlo.",
               unit="deg", min=0.0, max=45.0),
-        Param("n_draws", int, 10000, "Monte Carlo draws per fault.", min=100, max=1_000_000),
+        Param("n_draws", int, None, "Monte Carlo draws per fault, used exactly when given. Default: 10000 up "
+              "to 2000 screened faults, then 2e7 / n (at least 1000); the precision of the percentiles' levels "
+              "goes to run_info (percentile_level_se_p16).", min=100, max=1_000_000, nullable=True),
         Param("seed", int, 0, "Random seed of the Monte Carlo.", min=0),
         Param("max_age_ka", float, 5000.0,
               "Older surface ages are flagged age_suspect (probably given in years, not ka).",
