@@ -10,14 +10,23 @@ Every figure of faultmap stays readable and small from a handful to tens of thou
   :class:`~matplotlib.collections.LineCollection`, without a Python call per trace;
 * :func:`shown_note` words how many items a figure leaves out;
 * :func:`place_labels` writes at most a few labels, skipping any that would overlap a label
-  already placed or leave the axes.
+  already placed or leave the axes;
+* :func:`map_furniture` puts a north arrow, a scale bar and the CRS name on a map;
+* :func:`clear_legend` puts a legend where it hides the fewest plotted points;
+* :data:`FONT_FAMILY` is the font list (DejaVu Sans first, then installed fonts of wide script
+  coverage as fallbacks, set once when this module is imported) and :func:`quiet_glyphs` /
+  :func:`glyph_safe` keep matplotlib's "Glyph ... missing from font" warnings off the terminal.
 
 matplotlib is imported here only by the functions that draw.
 """
 
 from __future__ import annotations
 
+import contextlib
+import functools
 import math
+import textwrap
+import warnings
 
 import numpy as np
 
@@ -32,7 +41,66 @@ __all__ = [
     "shown_note",
     "thousands",
     "place_labels",
+    "FONT_FAMILY",
+    "quiet_glyphs",
+    "glyph_safe",
+    "nice_length",
+    "length_label",
+    "map_furniture",
+    "clear_legend",
 ]
+
+#: Fonts tried in turn for each glyph (matplotlib >= 3.6 falls back along ``font.family``):
+#: DejaVu Sans first, then those of these fonts of wide script coverage that are installed.
+_FALLBACK_FONTS = (
+    "Noto Sans", "Noto Sans CJK JP", "Noto Sans CJK SC", "Noto Sans CJK TC", "Noto Sans CJK KR",
+    "Noto Sans Arabic", "Noto Sans Hebrew", "Noto Sans Devanagari", "Noto Sans Bengali", "Noto Sans Thai",
+    "Noto Sans Ethiopic", "Noto Sans Georgian", "Noto Sans Armenian", "Source Han Sans", "WenQuanYi Zen Hei",
+    "Droid Sans Fallback", "Arial Unicode MS", "Microsoft YaHei", "Yu Gothic", "Malgun Gothic", "Nirmala UI",
+    "Segoe UI", "Segoe UI Symbol", "FreeSans",
+)
+
+
+def _font_family() -> list[str]:
+    from matplotlib import font_manager
+
+    have = {f.name for f in font_manager.fontManager.ttflist}
+    return ["DejaVu Sans"] + [name for name in _FALLBACK_FONTS if name in have]
+
+
+def _use_fonts() -> list[str]:
+    import matplotlib
+
+    family = _font_family()
+    matplotlib.rcParams["font.family"] = family
+    return family
+
+
+#: The font list every figure of faultmap uses (set in matplotlib's rcParams on import).
+FONT_FAMILY: list[str] = _use_fonts()
+
+
+@contextlib.contextmanager
+def quiet_glyphs():
+    """Silence matplotlib's "Glyph ... missing from font(s)" warnings inside the block (only those).
+
+    A name in a script that no installed font covers still draws (as empty boxes) but does not
+    print a warning per character on the terminal.
+    """
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=r"Glyph \d+ .*missing from font", category=UserWarning)
+        yield
+
+
+def glyph_safe(func):
+    """Run a figure function (decorated) inside :func:`quiet_glyphs` (its layout measures the text)."""
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        with quiet_glyphs():
+            return func(*args, **kwargs)
+
+    return wrapper
 
 #: Largest width or height of a figure, in pixels (on screen and as saved).
 MAX_SIDE_PX = 4000
@@ -65,6 +133,12 @@ def save_bounded(fig, path, *, dpi: float = 170, max_px: int = MAX_SIDE_PX, pad_
     cannot stretch the image), at ``dpi`` lowered where needed to keep both sides within
     ``max_px``. Returns the dpi used.
     """
+    with quiet_glyphs():
+        return _save_bounded(fig, path, dpi=dpi, max_px=max_px, pad_inches=pad_inches,
+                             overhang_inches=overhang_inches)
+
+
+def _save_bounded(fig, path, *, dpi, max_px, pad_inches, overhang_inches) -> float:
     from matplotlib.transforms import Bbox
 
     fig.draw_without_rendering()  # runs the layout engine, as savefig does before a tight crop
@@ -151,6 +225,7 @@ _SPOTS = (
 )
 
 
+@glyph_safe
 def place_labels(ax, xy, texts, *, priority=None, max_labels: int = 12, fontsize: float = 8.0,
                  boxed: bool = True, avoid=(), margin_px: float = 2.0, max_candidates: int | None = None) -> list:
     """Label at most ``max_labels`` points, the highest ``priority`` first, without overlaps.
@@ -211,6 +286,9 @@ def place_labels(ax, xy, texts, *, priority=None, max_labels: int = 12, fontsize
     leg = ax.get_legend()
     if leg is not None:
         placed.append(np.asarray(leg.get_window_extent(renderer).extents))
+    for a in ax.artists:  # the map furniture (north arrow, scale bar, CRS note)
+        if a.get_gid() == "map_furniture":
+            placed.append(np.asarray(a.get_window_extent(renderer).extents))
     boxes = np.asarray(placed, dtype=float).reshape(-1, 4)
     probe = Text(0, 0, "", fontsize=fontsize, figure=fig)
     out = []
@@ -238,3 +316,124 @@ def place_labels(ax, xy, texts, *, priority=None, max_labels: int = 12, fontsize
         if len(out) >= max_labels:
             break
     return out
+
+
+def nice_length(span: float, fraction: float = 0.2) -> float:
+    """Return a round length (1, 2 or 5 times a power of ten) of at most ``fraction`` of ``span``."""
+    target = float(span) * fraction
+    if not np.isfinite(target) or target <= 0:
+        return 1.0
+    k = 10.0 ** math.floor(math.log10(target))
+    return next(m * k for m in (5.0, 2.0, 1.0) if m * k <= target * (1 + 1e-9))
+
+
+def length_label(metres: float) -> str:
+    """Write a length as ``"500 m"`` below 1 km, ``"2 km"`` from 1 km."""
+    return f"{metres / 1000.0:g} km" if metres >= 1000.0 else f"{metres:g} m"
+
+
+def map_furniture(ax, crs_name: str | None = None, *, loc: str = "lower right", fraction: float = 0.2,
+                  fontsize: float = 7.0, span: float | None = None):
+    """North arrow, scale bar and CRS name of a map in a projected CRS, in one framed box at ``loc``.
+
+    The scale bar is a round length (1, 2 or 5 times a power of ten, in m or km) of about
+    ``fraction`` of the map width (``span``, default the x range of the axes), drawn to the
+    axes' data scale in two halves; the arrow points to grid north (up: the maps are drawn in
+    the projected CRS); the note under the bar names the CRS. The artists carry the gids
+    ``north_arrow``, ``scale_bar``, ``crs_note`` and the box ``map_furniture``
+    (:func:`place_labels` keeps labels clear of it).
+
+    Returns
+    -------
+    matplotlib.offsetbox.AnchoredOffsetbox
+    """
+    from matplotlib.offsetbox import (
+        AnchoredOffsetbox,
+        AuxTransformBox,
+        DrawingArea,
+        HPacker,
+        TextArea,
+        VPacker,
+    )
+    from matplotlib.patches import Polygon, Rectangle
+
+    if span is None:
+        x0, x1 = ax.get_xlim()
+        span = abs(x1 - x0)
+    length = nice_length(span, fraction)
+    h = 0.012 * span
+    bar = AuxTransformBox(ax.transData)
+    bar.add_artist(Rectangle((0, 0), length / 2, h, facecolor="black", edgecolor="black", lw=0.6))
+    bar.add_artist(Rectangle((length / 2, 0), length / 2, h, facecolor="white", edgecolor="black", lw=0.6))
+    scale = VPacker(children=[bar, TextArea(length_label(length), textprops=dict(fontsize=fontsize))],
+                    align="center", pad=0, sep=2)
+    scale.set_gid("scale_bar")
+    note = "grid north" + (f"; {crs_name}" if crs_name else "")
+    crs = TextArea(textwrap.fill(note, 34), textprops=dict(fontsize=fontsize - 1, color="0.2"))
+    crs.set_gid("crs_note")
+    arrow = DrawingArea(12, 20, 0, 0)
+    arrow.add_artist(Polygon([(6, 20), (0, 0), (6, 5)], closed=True, facecolor="black", edgecolor="black", lw=0.6))
+    arrow.add_artist(Polygon([(6, 20), (12, 0), (6, 5)], closed=True, facecolor="white", edgecolor="black", lw=0.6))
+    north = VPacker(children=[TextArea("N", textprops=dict(fontsize=fontsize + 1, weight="bold")), arrow],
+                    align="center", pad=0, sep=1)
+    north.set_gid("north_arrow")
+    right = VPacker(children=[scale, crs], align="center", pad=0, sep=3)
+    box = AnchoredOffsetbox(loc=loc, child=HPacker(children=[north, right], align="center", pad=0, sep=6),
+                            pad=0.35, borderpad=0.6, frameon=True)
+    box.patch.set(facecolor="white", alpha=0.85, edgecolor="0.6", boxstyle="round,pad=0.1")
+    box.set_gid("map_furniture")
+    box.set_zorder(7)
+    ax.add_artist(box)
+    return box
+
+
+_LEGEND_SPOTS = ("upper right", "upper left", "lower right", "lower left", "upper center", "lower center",
+                 "center right", "center left")
+
+
+def clear_legend(ax, xy, *, handles=None, spots=_LEGEND_SPOTS, headroom: bool = True, **kwargs):
+    """Put the axes' legend at the spot that covers the fewest of the points ``xy`` (data coordinates).
+
+    Each spot of ``spots`` is measured as drawn (call it once the layout is final) and the points
+    falling inside its box are counted, vectorised; the first spot with the fewest is kept. When
+    every spot covers some point and ``headroom`` is set (linear y axis), the y range is raised so
+    that the data lie below the legend, which then sits at the best upper spot.
+
+    Returns
+    -------
+    matplotlib.legend.Legend
+    """
+    xy = np.asarray(xy, dtype=float).reshape(-1, 2)
+    xy = xy[np.isfinite(xy).all(axis=1)]
+    leg = ax.legend(handles=handles, loc=spots[0], **kwargs) if handles is not None else ax.legend(
+        loc=spots[0], **kwargs)
+    if xy.shape[0] == 0:
+        return leg
+    renderer = _agg_renderer(ax.figure)
+    ax.apply_aspect()
+
+    def counts(cands):
+        pts = ax.transData.transform(xy)
+        out = []
+        for spot in cands:
+            leg.set_loc(spot)
+            b = leg.get_window_extent(renderer)
+            out.append(int(np.count_nonzero((pts[:, 0] >= b.x0) & (pts[:, 0] <= b.x1)
+                                            & (pts[:, 1] >= b.y0) & (pts[:, 1] <= b.y1))))
+        return np.asarray(out)
+
+    c = counts(spots)
+    best = spots[int(np.argmin(c))]
+    if c.min() > 0 and headroom and ax.get_yscale() == "linear":
+        leg.set_loc("upper right")
+        frac = leg.get_window_extent(renderer).height / max(ax.get_window_extent(renderer).height, 1.0)
+        y0, y1 = ax.get_ylim()
+        ymax = float(xy[:, 1].max())
+        top = y0 + (ymax - y0) / max(1.0 - frac - 0.04, 0.2)
+        if top > y1:
+            ax.set_ylim(y0, top)
+        upper = tuple(sp for sp in spots if sp.startswith("upper")) or spots
+        c = counts(upper)
+        best = upper[int(np.argmin(c))]
+    leg.set_loc(best)
+    return leg
