@@ -14,7 +14,7 @@ from collections.abc import Mapping, Sequence
 import numpy as np
 from matplotlib.figure import Figure
 
-from faultmap.figure_kit import bounded, place_labels, shown_note, thousands
+from faultmap.figure_kit import bounded, clear_legend, glyph_safe, place_labels, shown_note, thousands
 from faultmap.population.linefit import LineFit
 from faultmap.population.powerlaw_fit import PowerLawFit
 from faultmap.population.references import REFERENCE_RANGES, ReferenceRange
@@ -44,6 +44,23 @@ def _fit_label(name: str, f: LineFit) -> str:
     )
 
 
+#: what the y axis and the title name, by the tool's ``displacement`` choice: (quantity, symbol)
+_QUANTITY = {"throw": ("Maximum throw", "T"), "dip_slip": ("Maximum dip-slip displacement", "D")}
+
+
+def _median_dip(result: ScalingResult) -> float:
+    """Median dip (degrees) of the traces used in the fits (all traces if none is flagged; 60 if unknown)."""
+    f = result.faults
+    if "dip_deg" not in f.columns:
+        return 60.0
+    dip = np.asarray(f["dip_deg"], dtype=float)
+    if "scaling_used" in f.columns and f["scaling_used"].to_numpy(bool).any():
+        dip = dip[f["scaling_used"].to_numpy(bool)]
+    dip = dip[np.isfinite(dip) & (dip > 0) & (dip <= 90)]
+    return float(np.median(dip)) if dip.size else 60.0
+
+
+@glyph_safe
 def dl_figure(
     result: ScalingResult,
     *,
@@ -51,7 +68,7 @@ def dl_figure(
     references: Sequence[ReferenceRange] = REFERENCE_RANGES,
     label_outliers: bool = True,
     max_labels: int = 12,
-    figsize: tuple[float, float] = (8.0, 8.2),
+    figsize: tuple[float, float] = (7.6, 7.0),
 ) -> Figure:
     """Log-log displacement-length plot with fits, band, outliers, references.
 
@@ -64,7 +81,10 @@ def dl_figure(
         residual model of the analysis).
     references : sequence of ReferenceRange
         Published D/L ratio references drawn as lines labelled with their
-        sources (ratio ranges as a shaded envelope).
+        sources (ratio ranges as a shaded envelope). They are of dip-slip
+        displacement D: on a throw plot they are drawn as throw,
+        T = D sin(dip) at the median dip of the traces used, and the figure
+        says so.
     label_outliers : bool
         Write the unit id beside flagged outliers: at most ``max_labels``,
         the longest first, skipping any label that would overlap another,
@@ -81,8 +101,11 @@ def dl_figure(
     Notes
     -----
     Published ratios (Schlische et al. 1996; Kim & Sanderson 2005; Cowie &
-    Scholz 1992) are of maximum displacement; with throw on the y axis the
-    figure says so.
+    Scholz 1992) are of maximum displacement; with throw on the y axis they
+    are converted to throw (like with like) and the figure says so. The
+    title and the y axis name the same quantity (the analysis'
+    ``displacement`` setting). The legend sits inside the axes where it
+    hides the fewest points; both log axes carry plain-number ticks.
     """
     pop = result.population
     settings = result.settings
@@ -116,24 +139,27 @@ def dl_figure(
     lmin, lmax = np.nanmin(L[ok]), np.nanmax(L[ok])
     grid = np.logspace(np.log10(lmin) - 0.15, np.log10(lmax) + 0.15, 120)
 
-    # published references (ratio lines)
+    quantity, sym = _QUANTITY.get(disp, _QUANTITY["throw"])
+    # published references (ratio lines), of dip-slip D: as throw T = D sin(dip) on a throw plot
+    dip = _median_dip(result) if disp == "throw" else 90.0
+    conv = float(np.sin(np.radians(dip)))
     ref_colors = ["#7f7f7f", "#b0b0b0", "#d9d9d9"]
     ci = 0
     for ref in references:
         if ref.quantity != "d_l_ratio":
             continue
-        tag = f"{ref.source}" + (" (from memory)" if ref.confidence == "memory" else "")
+        short = ref.source.split(";")[0].strip()
         if ref.lo == ref.hi:
-            ax.plot(grid, ref.lo * grid, color="k", lw=1.0, ls=":", label=f"D = {ref.lo:g} L, {tag}")
+            ax.plot(grid, conv * ref.lo * grid, color="k", lw=1.0, ls=":", label=f"D/L = {ref.lo:g}, {short}")
         else:
             ax.fill_between(
                 grid,
-                ref.lo * grid,
-                ref.hi * grid,
+                conv * ref.lo * grid,
+                conv * ref.hi * grid,
                 color=ref_colors[ci % 3],
                 alpha=0.25,
                 lw=0,
-                label=f"D/L {ref.lo:g}-{ref.hi:g},\n{tag}",
+                label=f"D/L {ref.lo:g}-{ref.hi:g}, {short}",
             )
             ci += 1
 
@@ -194,26 +220,37 @@ def dl_figure(
     ymin = np.nanmin(D[ok]) / 3.0
     ymax = np.nanmax(D[ok]) * 3.0
     ax.set_ylim(ymin, ymax)
-    ylab = _LABELS["max_throw_m" if disp == "throw" else "max_dip_slip_m"]
-    ax.set_xlabel(_LABELS["length_m"] + (" of linked system" if unit == "system" else ""), fontsize=11)
-    ax.set_ylabel(ylab, fontsize=11)
-    ax.tick_params(labelsize=9)
+    ax.set_xlabel(_LABELS["length_m"].replace(" (m)", "") + (" of linked system" if unit == "system" else "")
+                  + ", L (m)", fontsize=11)
+    ax.set_ylabel(f"{quantity}, {sym} (m)", fontsize=11)
+    ax.tick_params(which="both", labelsize=8.5)
     ax.grid(True, which="both", lw=0.3, alpha=0.5)
-    title = "Displacement-length scaling, D = \u03b3 L\u207f (D, L in m)"
-    ax.set_title(title, fontsize=12)
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+
+    for axis, (lo_, hi_) in ((ax.xaxis, ax.get_xlim()), (ax.yaxis, ax.get_ylim())):
+        # plain numbers on both axes: 1-2-5 over up to three decades, powers of ten beyond
+        fmt = FuncFormatter(_label_125 if np.log10(hi_ / lo_) <= 3.0 else _label_1)
+        axis.set_major_locator(LogLocator(base=10.0))
+        axis.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
+        axis.set_major_formatter(fmt)
+        axis.set_minor_formatter(fmt if np.log10(hi_ / lo_) <= 3.0 else NullFormatter())
+    ax.set_title(f"{quantity}-length scaling, {sym} = \u03b3 L\u207f ({sym}, L in m)", fontsize=12)
     if disp == "throw":
         ax.text(
             0.99,
             0.01,
-            "published ratios are of dip-slip D; throw = D sin(dip)",
+            f"published D/L (dip-slip D) drawn as throw: T = D sin({dip:.0f}\u00b0), median dip",
             transform=ax.transAxes,
             ha="right",
             va="bottom",
             fontsize=7.5,
             color="#555555",
         )
-    ax.legend(fontsize=7.5, loc="upper center", bbox_to_anchor=(0.5, -0.09), ncol=2, framealpha=0.9)
     fig.tight_layout()
+    # inside the axes, compact, where it hides the fewest points (the fits and the data)
+    pts = [np.c_[L[ok], D[ok]]] + [np.c_[grid, f.predict(grid)] for f in result.fits.values() if f.fitted]
+    clear_legend(ax, np.vstack(pts), spots=("upper left", "lower right", "upper right", "lower left"),
+                 fontsize=7, framealpha=0.9, handlelength=1.8, borderpad=0.4, labelspacing=0.3)
     flagged = np.flatnonzero(under | over)
     if label_outliers and max_labels > 0 and flagged.size:
         # the longest outliers first; a label that would overlap is skipped
@@ -226,6 +263,7 @@ def dl_figure(
     return bounded(fig)
 
 
+@glyph_safe
 def size_figure(
     fits: Mapping[str, PowerLawFit],
     *,
@@ -346,9 +384,24 @@ def _thin_ccdf(n: int, max_points: int) -> np.ndarray:
     return np.sort(n - rank)
 
 
+def _plain(value: float) -> str:
+    """Write a positive number plainly (2000, 0.5); in powers of ten only outside 0.001 to 10^7."""
+    if 1e-3 <= value < 1e7:
+        return np.format_float_positional(float(f"{value:.6g}"), trim="-")
+    return f"{value:.0e}".replace("e+0", "e").replace("e-0", "e-")
+
+
 def _label_125(value: float, _pos=None) -> str:
     """Tick label for 1, 2 and 5 times a power of ten; empty otherwise."""
     if not np.isfinite(value) or value <= 0:
         return ""
     mant = value / 10 ** np.floor(np.log10(value) + 1e-9)
-    return f"{value:g}" if np.isclose(mant, (1.0, 2.0, 5.0), rtol=1e-6).any() else ""
+    return _plain(value) if np.isclose(mant, (1.0, 2.0, 5.0), rtol=1e-6).any() else ""
+
+
+def _label_1(value: float, _pos=None) -> str:
+    """Tick label for a power of ten; empty otherwise."""
+    if not np.isfinite(value) or value <= 0:
+        return ""
+    mant = value / 10 ** np.floor(np.log10(value) + 1e-9)
+    return _plain(value) if np.isclose(mant, 1.0, rtol=1e-6) or np.isclose(mant, 10.0, rtol=1e-6) else ""
