@@ -17,9 +17,20 @@ from matplotlib.collections import LineCollection, PolyCollection
 from matplotlib.colors import Normalize
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
 from matplotlib.ticker import MaxNLocator
 
-from faultmap.figure_kit import bounded, line_parts, panel_grid, place_labels, shown_note, trace_width
+from faultmap.figure_kit import (
+    bounded,
+    clear_legend,
+    glyph_safe,
+    line_parts,
+    map_furniture,
+    panel_grid,
+    place_labels,
+    shown_note,
+    trace_width,
+)
 from faultmap.numerics.hillshade import hillshade as _shade
 
 __all__ = ["hillshade", "throw_map", "throw_profiles", "system_profiles"]
@@ -63,6 +74,10 @@ def _extent(arr, transform):
     return (x0, x0 + transform.a * w, y0 + transform.e * h, y0)
 
 
+_VOID_COLOUR = "#f3e3c3"
+
+
+@glyph_safe
 def throw_map(
     faults,
     *,
@@ -74,6 +89,8 @@ def throw_map(
     figsize=(8.0, 7.0),
     n_labels: int = 8,
     max_ticks: int = 400,
+    crs_name: str | None = None,
+    exaggeration: float = 4.0,
 ) -> Figure:
     """Map of fault traces coloured by maximum throw over a hillshade.
 
@@ -94,21 +111,45 @@ def throw_map(
     max_ticks : int
         Down-thrown-side ticks are drawn on at most this many faults (the
         largest); the figure says how many were left out.
+    crs_name : str, optional
+        Name of the (projected) CRS, written beside the scale bar and the
+        grid-north arrow.
+    exaggeration : float
+        Vertical exaggeration of the shaded relief; its grey range is
+        stretched between the 1st and 99th percentiles so that scarps show.
+        DEM voids are drawn in a light sand colour, named in the legend.
 
     Returns
     -------
     matplotlib.figure.Figure
-        All traces in one collection (the largest on top), line width
-        thinning as traces crowd; axes in metres.
+        All traces in one collection (the largest on top, outlined in
+        black so that they read over the relief), line width thinning as
+        traces crowd; the colour bar gives their maximum throw; axes in
+        metres.
     """
     fig = Figure(figsize=figsize)
     ax = fig.add_subplot(1, 1, 1)
     has_dem = elevation is not None and transform is not None and np.size(elevation)
+    handles = []
     if has_dem:
-        hs = hillshade(elevation, transform)
+        import matplotlib
+
+        z = np.asarray(elevation, dtype=float)
+        hs = hillshade(z * exaggeration, transform)
+        hs[~np.isfinite(z)] = np.nan
+        fin = hs[np.isfinite(hs)]
+        lo, hi = (np.percentile(fin, [1.0, 99.0]) if fin.size else (0.0, 1.0))
+        if not hi > lo:
+            lo, hi = 0.0, 1.0
+        grey = matplotlib.colormaps["gray"].with_extremes(bad=_VOID_COLOUR)
+        # a grey range kept off pure black and white: the coloured traces stay visible over it
+        span = hi - lo
         ax.imshow(
-            hs, extent=_extent(hs, transform), cmap="gray", vmin=0, vmax=1, interpolation="bilinear", zorder=0
+            hs, extent=_extent(hs, transform), cmap=grey, vmin=lo - 0.25 * span, vmax=hi + 0.15 * span,
+            interpolation="bilinear", zorder=0,
         )
+        if not np.isfinite(z).all():
+            handles.append(Patch(facecolor=_VOID_COLOUR, edgecolor="0.5", lw=0.5, label="DEM void"))
     n = len(faults)
     vals = faults[column].to_numpy(dtype=float) if column in faults.columns else np.full(n, np.nan)
     geoms = faults.geometry.to_numpy()
@@ -121,18 +162,21 @@ def throw_map(
     if seg_good.any():
         idx = np.flatnonzero(seg_good)
         idx = idx[np.argsort(vals[owner[idx]], kind="stable")]  # the largest drawn last, on top
+        from matplotlib import patheffects
+
         lc = LineCollection([segs[i] for i in idx], array=vals[owner[idx]], cmap=cmap, norm=norm,
-                            linewidths=lw, zorder=3)
+                            linewidths=lw, zorder=3,
+                            path_effects=[patheffects.Stroke(linewidth=lw + 1.4, foreground="black"),
+                                          patheffects.Normal()])
         ax.add_collection(lc)
         cb = fig.colorbar(lc, ax=ax, shrink=0.8)
-        cb.set_label("maximum throw (m)")
+        cb.set_label("maximum throw (m): colour of each fault trace")
     bad = ~good
     if bad.any():
         ax.add_collection(
             LineCollection([segs[i] for i in np.flatnonzero(~seg_good)], colors="0.4", linestyles="--",
                            linewidths=0.6 * lw, zorder=2)
         )
-    handles = [Line2D([], [], color="tab:green", lw=2, label="fault trace (colour: max throw)")]
     if bad.any():
         handles.append(Line2D([], [], color="0.4", ls="--", lw=1.2, label="no usable station"))
     notes = []
@@ -189,12 +233,14 @@ def throw_map(
     ax.set_xlabel("easting (m)")
     ax.set_ylabel("northing (m)")
     ax.set_title(title or "Maximum throw along each fault")
-    ax.legend(handles=handles, loc="lower left", fontsize=8, framealpha=0.85)
+    if handles:
+        ax.legend(handles=handles, loc="lower left", fontsize=8, framealpha=0.85)
     ax.ticklabel_format(style="plain", useOffset=False)
     for lab in ax.get_xticklabels():
         lab.set_rotation(30)
     if notes:
         fig.text(0.01, 0.005, "; ".join(notes), fontsize=7, ha="left", va="bottom", color="0.25")
+    map_furniture(ax, crs_name, loc="lower right")
     fig.tight_layout(rect=(0, 0.03 if notes else 0, 1, 1))
     if n_labels > 0 and good.any() and "fault_id" in faults.columns:
         _label_largest(ax, faults, geoms, vals, n_labels)
@@ -259,6 +305,7 @@ def _profile_panel(ax, s, title, smooth=True):
     ax.set_ylabel("throw (m)")
 
 
+@glyph_safe
 def throw_profiles(faults, stations, *, fault_ids=None, n_largest: int = 6, ncols: int = 2) -> Figure:
     """Along-strike throw profiles of the largest faults (or of ``fault_ids``).
 
@@ -321,6 +368,7 @@ _SEG_COLOURS = ("tab:blue", "tab:orange", "tab:green", "tab:purple", "tab:brown"
                 "tab:cyan")
 
 
+@glyph_safe
 def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols: int = 2,
                     max_legend_segments: int = 6) -> Figure:
     """Throw along each linked fault system (segments sharing a ``system_id``).
@@ -366,12 +414,14 @@ def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols
     if "x" not in st.columns and hasattr(st, "geometry"):
         st = st.assign(x=st.geometry.x, y=st.geometry.y)
     lookup = _station_lookup(st)
+    legends = []
     for k, sid in enumerate(sys_ids):
         ax = fig.add_subplot(nrows, ncols, k + 1)
         fs = faults.loc[faults["system_id"] == sid]
         sp = system_profile(fs, st, _lookup=lookup)
         ax_deg = float("nan")
         handles = []
+        pts = [np.zeros((0, 2))]
         if sp is not None:
             ax_deg = sp["axis_deg"]
             segs = sp["segments"]
@@ -386,6 +436,8 @@ def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols
             else:
                 handles.append(Line2D([], [], color=cols[0], lw=1.2,
                                       label=f"{len(segs)} segments (one colour each)"))
+            pts += [np.r_[np.c_[a, t], np.c_[a, t - e], np.c_[a, t + e]] for _, _, a, t, e in segs]
+            pts.append(np.c_[sp["grid"], sp["total"]])
             ax.plot(sp["grid"], sp["total"], "k-", lw=1.8)
             handles.append(Line2D([], [], color="k", lw=1.8, label="sum of segments"))
             ax.autoscale_view()
@@ -397,6 +449,7 @@ def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols
             z = zones.loc[zones["system_id"] == sid]
             if len(z):
                 ax.plot(z["along_m"], z["throw_min_m"], "v", color="tab:red", ms=8)
+                pts.append(np.c_[z["along_m"].to_numpy(float), z["throw_min_m"].to_numpy(float)])
                 handles.append(Line2D([], [], color="tab:red", marker="v", ls="", ms=8,
                                       label="linkage zone (throw minimum)"))
         ax.set_title(f"system {sid}: {len(fs)} segments", fontsize=9)
@@ -404,11 +457,12 @@ def system_profiles(faults, stations, zones=None, *, max_systems: int = 6, ncols
         ax.xaxis.set_major_locator(MaxNLocator(nbins=5))
         ax.set_ylabel("throw (m)")
         ax.axhline(0, color="0.6", lw=0.6)
-        if handles:
-            # "best" scans every vertex of the drawn lines: only for the small systems
-            few = sp is None or len(sp["segments"]) <= max_legend_segments
-            ax.legend(handles=handles, fontsize=7, loc="best" if few else "upper right", framealpha=0.85)
+        legends.append((ax, handles, np.vstack(pts)))
     note = shown_note(len(sys_ids), n_systems, "linked systems", "the largest by summed maximum throw")
     fig.suptitle(f"Throw along linked fault systems ({note})", fontsize=11)
     fig.tight_layout(rect=(0, 0, 1, 1 - min(0.1, 0.45 / fig.get_figheight())))
+    # each legend where it covers the fewest drawn points (the y range raised above the data if none is clear)
+    for ax, handles, pts in legends:
+        if handles:
+            clear_legend(ax, pts, handles=handles, fontsize=7, framealpha=0.85)
     return bounded(fig)

@@ -138,7 +138,9 @@ def run(ctx, p: dict) -> None:
 
         elev, t = read_overview(dem, max_pixels=1_000_000)
         ctx.save_figure(
-            throw_map(res.faults, elevation=elev, transform=t, n_labels=p["n_map_labels"]), "throw_map.png"
+            throw_map(res.faults, elevation=elev, transform=t, n_labels=p["n_map_labels"],
+                      crs_name=getattr(ctx.crs, "name", None)),
+            "throw_map.png",
         )
         ctx.save_figure(
             throw_profiles(res.faults, res.stations, n_largest=p["n_profile_figures"]), "throw_profiles.png"
