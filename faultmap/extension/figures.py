@@ -16,13 +16,14 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from faultmap.errors import ParameterError
-from faultmap.figure_kit import bounded, line_parts, trace_width
+from faultmap.figure_kit import bounded, glyph_safe, line_parts, map_furniture, trace_width
 
 __all__ = ["extension_map_figure", "transect_extension_figure"]
 
 _FONT = 10
 
 
+@glyph_safe
 def extension_map_figure(
     cells: gpd.GeoDataFrame,
     faults: gpd.GeoDataFrame | None = None,
@@ -32,6 +33,7 @@ def extension_map_figure(
     transects: gpd.GeoDataFrame | None = None,
     bar_fraction: float = 0.9,
     title: str | None = None,
+    crs_name: str | None = None,
 ) -> Figure:
     """Map of extension directions: bars along the e1 axis scaled by e1.
 
@@ -52,6 +54,9 @@ def extension_map_figure(
         Length of the longest bar as a fraction of the typical cell width.
     title : str, optional
         Figure title.
+    crs_name : str, optional
+        Name of the (projected) CRS, written beside the scale bar and the
+        grid-north arrow.
 
     Returns
     -------
@@ -104,8 +109,8 @@ def extension_map_figure(
     else:
         ax.text(0.5, 0.5, "no extension measured", transform=ax.transAxes, ha="center", va="center", fontsize=_FONT)
     if "n_default_dip" in cells.columns and (cells["n_default_dip"].to_numpy() > 0).any():
-        ax.text(0.01, 0.01, "some faults use the default dip (dip_source = default)", transform=ax.transAxes,
-                fontsize=_FONT - 2, va="bottom", ha="left", color="0.2",
+        ax.text(0.01, 0.99, "some faults use the default dip (dip_source = default)", transform=ax.transAxes,
+                fontsize=_FONT - 2, va="top", ha="left", color="0.2",
                 bbox={"facecolor": "white", "alpha": 0.7, "edgecolor": "none"})
     bounds = []
     for g in (cells, faults, transects):
@@ -129,9 +134,11 @@ def extension_map_figure(
         ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.1), ncol=min(3, len(handles)),
                   fontsize=_FONT - 1, frameon=False)
     ax.set_title(title or "Horizontal extension directions (Kostrov summation)", fontsize=_FONT + 1)
+    map_furniture(ax, crs_name, loc="lower right")
     return bounded(fig)
 
 
+@glyph_safe
 def transect_extension_figure(transects: gpd.GeoDataFrame, *, title: str | None = None) -> Figure:
     """Extension per transect with its Monte Carlo 16-84 % range.
 

@@ -95,7 +95,7 @@ def run(ctx, p: dict) -> None:
                 extent = (tr.c, tr.c + tr.a * z.shape[1], tr.f + tr.e * z.shape[0], tr.f)
         ctx.save_figure(
             extension_map_figure(cells, faults, hillshade=hs, hillshade_extent=extent,
-                                 transects=ctx.layers.get("transects")),
+                                 transects=ctx.layers.get("transects"), crs_name=getattr(ctx.crs, "name", None)),
             FIGURE,
         )
 
