@@ -18,7 +18,15 @@ from matplotlib.collections import LineCollection
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
-from faultmap.figure_kit import bounded, line_parts, panel_grid, shown_note, trace_width
+from faultmap.figure_kit import (
+    bounded,
+    glyph_safe,
+    line_parts,
+    map_furniture,
+    panel_grid,
+    shown_note,
+    trace_width,
+)
 
 __all__ = ["rift_map_figure", "width_along_axis_figure", "swath_figure", "subsidence_figure"]
 
@@ -29,6 +37,7 @@ def _lines(geoms: Sequence, scale: float = 1.0) -> list[np.ndarray]:
     return line_parts(np.asarray(list(geoms), dtype=object), scale=scale)[0]
 
 
+@glyph_safe
 def rift_map_figure(
     faults: gpd.GeoDataFrame,
     axis: gpd.GeoDataFrame,
@@ -36,6 +45,7 @@ def rift_map_figure(
     *,
     summary: pd.DataFrame | None = None,
     figsize: tuple[float, float] = (8.0, 8.0),
+    crs_name: str | None = None,
 ) -> Figure:
     """Map of the faults, the rift axis, the sections and the measured widths.
 
@@ -53,6 +63,9 @@ def rift_map_figure(
         ``rift_summary``: its class and median width go in the title.
     figsize : tuple of float
         Inches.
+    crs_name : str, optional
+        Name of the (projected) CRS, written beside the scale bar and the
+        grid-north arrow.
 
     Returns
     -------
@@ -112,9 +125,12 @@ def rift_map_figure(
     ax.set_title(title, fontsize=11)
     ax.grid(True, lw=0.3, alpha=0.5)
     fig.tight_layout()
+    ax.apply_aspect()  # the x range as drawn sets the scale bar's length
+    map_furniture(ax, crs_name, loc="lower right")
     return bounded(fig)
 
 
+@glyph_safe
 def width_along_axis_figure(
     sections: pd.DataFrame,
     *,
@@ -175,6 +191,7 @@ def width_along_axis_figure(
     return bounded(fig)
 
 
+@glyph_safe
 def swath_figure(
     profiles: pd.DataFrame,
     *,
@@ -265,6 +282,7 @@ def swath_figure(
     return bounded(fig)
 
 
+@glyph_safe
 def subsidence_figure(table: pd.DataFrame, *, figsize: tuple[float, float] = (7.5, 5.0)) -> Figure:
     """Predicted subsidence versus time after rifting (McKenzie 1978).
 

@@ -185,7 +185,7 @@ def run(ctx, p: dict) -> None:
             width_along_axis_figure,
         )
 
-        ctx.save_figure(rift_map_figure(faults, axis, sections, summary=summary), MAP_FIGURE)
+        ctx.save_figure(rift_map_figure(faults, axis, sections, summary=summary, crs_name=getattr(ctx.crs, "name", None)), MAP_FIGURE)
         ctx.save_figure(width_along_axis_figure(sections, summary=summary, topography=features), ALONG_FIGURE)
         if profiles is not None and np.any(profiles["n_valid"] > 0):
             ctx.save_figure(
