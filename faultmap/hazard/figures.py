@@ -20,7 +20,16 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, PathPatch
 from matplotlib.path import Path
 
-from faultmap.figure_kit import bounded, line_parts, place_labels, shown_note, trace_width
+from faultmap.figure_kit import (
+    bounded,
+    glyph_safe,
+    length_label,
+    line_parts,
+    map_furniture,
+    place_labels,
+    shown_note,
+    trace_width,
+)
 from faultmap.hazard.caution import CAUTION
 from faultmap.hazard.magnitudes import MAGNITUDE_KEYS, get_relation
 
@@ -39,12 +48,13 @@ _LABELS = {
 }
 
 
-def map_caption() -> str:
-    """Caption of :func:`hazard_map` (includes the caution)."""
+def map_caption(zoom: str | None = None) -> str:
+    """Caption of :func:`hazard_map` (includes the caution); ``zoom`` describes the zoomed panel."""
     return (
         "Active faults screened for surface rupture. Shaded: rupture zones, wider on the "
         "hanging wall, including the mapping uncertainty of the trace. Labels: fault id and "
-        "preferred moment magnitude of a rupture of that segment alone. " + CAUTION
+        "preferred moment magnitude of a rupture of that segment alone. "
+        + (f"{zoom} " if zoom else "") + CAUTION
     )
 
 
@@ -86,14 +96,38 @@ def _line_segments(geoms: np.ndarray) -> list[np.ndarray]:
     return line_parts(shapely.line_merge(geoms) if len(geoms) else geoms)[0]
 
 
+def _zoom_window(faults, zones, screened, mags, geoms):
+    """Fault id, centre and side (m) of the zoom on the largest screened fault's rupture zone, or None."""
+    if not screened.any() or not len(zones) or "fault_id" not in zones.columns:
+        return None
+    sel = np.flatnonzero(screened)
+    length = shapely.length(geoms[sel])
+    best = sel[np.lexsort((-length, -np.nan_to_num(mags[sel], nan=-np.inf)))[0]]
+    fid = faults["fault_id"].to_numpy()[best]
+    zg = zones.geometry.to_numpy()[zones["fault_id"].to_numpy() == fid]
+    zg = zg[~shapely.is_empty(zg)] if zg.size else zg
+    if zg.size == 0:
+        return None
+    z = shapely.union_all(zg)
+    trace_len = float(shapely.length(geoms[best]))
+    # mean zone width: area over the trace length; the window shows it a few times over
+    width = float(shapely.area(z)) / max(trace_len, 1.0)
+    side = float(np.clip(8.0 * width, 600.0, 4000.0))
+    c = shapely.get_coordinates(shapely.line_interpolate_point(geoms[best], 0.5, normalized=True))[0]
+    return fid, c, side, width
+
+
+@glyph_safe
 def hazard_map(
     faults: gpd.GeoDataFrame,
     zones: gpd.GeoDataFrame,
     *,
     title: str = "Active-fault screening",
-    figsize: tuple[float, float] = (8.0, 8.5),
+    figsize: tuple[float, float] = (11.5, 8.5),
     dpi: int = 150,
     n_labels: int = 15,
+    crs_name: str | None = None,
+    zoom: bool = True,
 ) -> Figure:
     """Map of the active faults, their rupture zones and magnitude labels.
 
@@ -113,6 +147,14 @@ def hazard_map(
         first (then the longest); a label that would overlap another, the
         legend or the frame is skipped. The figure says how many were
         labelled.
+    crs_name : str, optional
+        Name of the (projected) CRS, written beside the scale bars and the
+        grid-north arrows.
+    zoom : bool, optional
+        Add a second panel, on the right, zoomed on the rupture zone of the
+        largest screened fault (the largest preferred magnitude, then the
+        longest) at a scale where the zone widths show, with its own scale
+        bar; its window is outlined on the map and the caption says so.
 
     Returns
     -------
@@ -121,7 +163,7 @@ def hazard_map(
         includes the screening caution.
     """
     fig = Figure(figsize=figsize, dpi=dpi)
-    ax = fig.add_axes((0.12, 0.2, 0.83, 0.72))
+    ax = fig.add_axes((0.08, 0.2, 0.6, 0.72))
     if "hazard_screened" in faults.columns:
         screened = faults["hazard_screened"].fillna(False).to_numpy(bool)
     elif "active" in faults.columns:
@@ -129,11 +171,19 @@ def hazard_map(
     else:
         screened = np.zeros(len(faults), bool)
     geoms = faults.geometry.to_numpy()
+    mags = faults["mag_preferred"].to_numpy(float) if "mag_preferred" in faults.columns else np.full(len(faults), np.nan)
+    win = _zoom_window(faults, zones, screened, mags, geoms) if zoom else None
     path = _polygons_path(zones.geometry.to_numpy())
     if path is not None:
-        # one compound path in one collection; limits are set below (no per-vertex limit update)
-        ax.add_collection(PatchCollection([PathPatch(path)], facecolor="#f4a582", edgecolor="#b2182b", linewidth=0.6,
-                                          alpha=0.55, zorder=1), autolim=False)
+        # one compound path in one collection; limits are set below (no per-vertex limit update);
+        # the zoom window's outline rides in the same collection
+        patches = [PathPatch(path, facecolor="#f4a582", edgecolor="#b2182b", linewidth=0.6, alpha=0.55)]
+        if win is not None:
+            (cx, cy), half = win[1], 0.5 * win[2]
+            patches.append(PathPatch(Path([(cx - half, cy - half), (cx + half, cy - half), (cx + half, cy + half),
+                                           (cx - half, cy + half), (cx - half, cy - half)], closed=True),
+                                     facecolor="none", edgecolor="#1a1a1a", linewidth=1.2))
+        ax.add_collection(PatchCollection(patches, match_original=True, zorder=1), autolim=False)
     lw = trace_width(len(faults), widest=1.8)
     other = _line_segments(geoms[~screened])
     if other:
@@ -141,7 +191,6 @@ def hazard_map(
     act = _line_segments(geoms[screened])
     if act:
         ax.add_collection(LineCollection(act, colors="#b2182b", linewidths=lw, zorder=3))
-    mags = faults["mag_preferred"].to_numpy(float) if "mag_preferred" in faults.columns else np.full(len(faults), np.nan)
     ids = faults["fault_id"].to_numpy()
     b = np.asarray(faults.total_bounds, float)
     if len(zones):
@@ -165,6 +214,10 @@ def hazard_map(
         ],
         loc="upper right", fontsize=8, framealpha=0.9,
     )
+    map_furniture(ax, crs_name, loc="lower right")
+    zoom_note = None
+    if win is not None:
+        zoom_note = _zoom_panel(fig, faults, zones, screened, geoms, path, win, crs_name, lw)
     n_scr = int(screened.sum())
     placed = []
     if n_scr and n_labels > 0:
@@ -180,10 +233,49 @@ def hazard_map(
         ax.text(0.5, 1.01, "labelled: " + shown_note(len(placed), n_scr, "screened faults",
                                                       "the largest magnitudes, without overlaps").replace(" shown", ""),
                 transform=ax.transAxes, ha="center", va="bottom", fontsize=8, color="0.3")
-    _caption(fig, map_caption())
+    _caption(fig, map_caption(zoom_note), width=165)
     return bounded(fig)
 
 
+def _zoom_panel(fig, faults, zones, screened, geoms, path, win, crs_name, lw) -> str:
+    """Draw the zoom on one fault's rupture zone in a second axes; return the caption's sentence."""
+    fid, (cx, cy), side, width = win
+    half = 0.5 * side
+    # beside the map as drawn (its equal aspect may leave it narrower than its slot), square
+    ax = fig.axes[0]
+    ax.apply_aspect()
+    pos = ax.get_position()
+    fw, fh = fig.get_size_inches()
+    w = min(0.3, 0.98 - (pos.x1 + 0.04))
+    h = w * fw / fh
+    zx = fig.add_axes((pos.x1 + 0.04, pos.y0 + 0.5 * (pos.height - h), w, h))
+    box = shapely.box(cx - half, cy - half, cx + half, cy + half)
+    near = shapely.intersects(geoms, box)
+    if path is not None:
+        zx.add_collection(PatchCollection([PathPatch(path)], facecolor="#f4a582", edgecolor="#b2182b", linewidth=0.8,
+                                          alpha=0.55, zorder=1), autolim=False)
+    for sel, colour, w in ((near & ~screened, "0.55", 1.0), (near & screened, "#b2182b", 2.0)):
+        segs = _line_segments(geoms[sel])
+        if segs:
+            zx.add_collection(LineCollection(segs, colors=colour, linewidths=w, zorder=3))
+    zx.set_xlim(cx - half, cx + half)
+    zx.set_ylim(cy - half, cy + half)
+    zx.set_aspect("equal", adjustable="box")
+    zx.set_xticks([])
+    zx.set_yticks([])
+    for sp in zx.spines.values():
+        sp.set(color="#1a1a1a", lw=1.2)
+    zx.set_title(f"Zoom on F{fid}: rupture zone\n(mean width {length_label(round(width))}, to scale)",
+                 fontsize=9)
+    # the furniture in a corner the fault does not cross: lower right for a trace striking NE-SW
+    xy = shapely.get_coordinates(geoms[faults["fault_id"].to_numpy() == fid][0])
+    d = xy[-1] - xy[0]
+    map_furniture(zx, crs_name, loc="lower right" if d[0] * d[1] >= 0 else "lower left", fraction=0.3, fontsize=6.5)
+    return (f"Right panel: the rupture zone of F{fid} (the largest screened fault) zoomed "
+            f"{side / 1000.0:.1f} km across, so the zone widths are visible; its window is outlined on the map.")
+
+
+@glyph_safe
 def magnitude_by_relation(
     scenarios: gpd.GeoDataFrame,
     *,

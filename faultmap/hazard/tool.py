@@ -98,7 +98,7 @@ def run(ctx, p: dict) -> None:
     if ctx.figures_enabled and n:
         from faultmap.hazard.figures import hazard_map, magnitude_by_relation
 
-        ctx.save_figure(hazard_map(res.faults, res.zones, n_labels=p["n_map_labels"]), MAP_FIGURE)
+        ctx.save_figure(hazard_map(res.faults, res.zones, n_labels=p["n_map_labels"], crs_name=getattr(ctx.crs, "name", None)), MAP_FIGURE)
         ctx.save_figure(magnitude_by_relation(res.scenarios, max_scenarios=p["n_scenarios_plotted"]), MAGNITUDE_FIGURE)
 
 
