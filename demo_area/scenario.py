@@ -409,6 +409,10 @@ transects_layer = "transects"
 [output]
 gpkg = "results/demo_results.gpkg"
 figures = "results/figures/"
+
+[width]
+# subsidence from the transects' beta: a lower bound (brittle upper-crust extension only; see run_info)
+beta_from_transects = true
 """
 
 

@@ -24,6 +24,15 @@ SWATH_FIGURE = "width_swath.png"
 SUBSIDENCE_FIGURE = "width_subsidence.png"
 
 
+#: Why the transects' beta is not the lithosphere's (written out whenever it feeds the subsidence).
+TRANSECT_BETA_CAVEAT = (
+    "subsidence from the transects' beta: that beta is brittle upper-crust extension on the resolved faults "
+    "since the mapped surface formed, not the whole-lithosphere stretching the McKenzie (1978) model assumes "
+    "(faults below detection, ductile thinning and older extension are missing): read the curve as a lower "
+    "bound, and give beta when the lithosphere's stretching is known."
+)
+
+
 def _beta_from_context(ctx) -> tuple[float | None, str]:
     """Median beta of the measured transects, if the transect tool ran."""
     t = None
@@ -138,12 +147,17 @@ def run(ctx, p: dict) -> None:
     )
 
     # subsidence from beta
-    beta, source = _beta_from_context(ctx)
-    if beta is None and p["beta"] is not None:
+    beta, source = None, ""
+    if p["beta"] is not None:  # the user's value wins
         beta, source = float(p["beta"]), "parameter beta"
+    elif p["beta_from_transects"]:
+        beta, source = _beta_from_context(ctx)
+        if beta is not None:
+            ctx.warn(TRANSECT_BETA_CAVEAT)
     table = None
     if beta is None:
-        ctx.warn("no beta (the transect tool did not run and the beta parameter is unset): subsidence skipped.")
+        ctx.warn("no beta: give the stretching factor of the lithosphere (beta), or set beta_from_transects "
+                 "to use the transects' (see its caveat); subsidence skipped.")
     elif beta <= 1.0:
         ctx.warn(f"beta {beta:.4f} shows no stretching: subsidence skipped.")
     else:
@@ -243,7 +257,11 @@ TOOL = Tool(
               "Pre-rift crustal thickness, if known: compared with Buck (1991) modes and used for subsidence "
               "(default there 35 km).", unit="m", min=0.0, min_exclusive=True, nullable=True),
         Param("beta", float, None,
-              "Stretching factor for subsidence when the transect tool did not run.", min=1.0, nullable=True),
+              "Stretching factor of the whole lithosphere for the McKenzie (1978) subsidence; it wins over the "
+              "transects' beta.", min=1.0, nullable=True),
+        Param("beta_from_transects", bool, False,
+              "Without beta, use the median beta of the transect tool: brittle upper-crust extension on the "
+              "resolved faults, a lower bound of the lithosphere's stretching (the caveat goes to run_info)."),
         Param("subsidence_max_myr", float, 200.0, "Last time of the subsidence table.", unit="Myr",
               min=0.0, min_exclusive=True),
         Param("swath", bool, True, "Compute swath profiles across the axis from the DEM."),

@@ -458,9 +458,17 @@ def test_width_tool_beta_from_transects_and_skip_without_beta():
     ctx2.faults = f
     ctx2.current_tool = "width"
     ctx2.results["transect"] = {"transects": t, "crossings": None}
+    # the user's beta wins over the transects' (science review: the transect beta is upper-crust
+    # brittle extension, not the lithosphere's stretching the McKenzie model needs)
     TOOL.run(ctx2, TOOL.resolve_params({"spacing_m": 25e3, "beta": 3.0}))
+    assert ctx2.layers["subsidence"]["beta"].iloc[0] == pytest.approx(3.0)
+    assert ctx2.records["width.beta_source"] == "parameter beta"
+    # the transects' beta only when asked, with its caveat written out
+    ctx2.warnings.clear()
+    TOOL.run(ctx2, TOOL.resolve_params({"spacing_m": 25e3, "beta_from_transects": True}))
     sub = ctx2.layers["subsidence"]
     assert sub["beta"].iloc[0] == pytest.approx(1.3)
     assert "transect" in ctx2.records["width.beta_source"]
+    assert any("lower bound" in w and "upper-crust" in w for w in ctx2.warnings)
     with pytest.raises(ParameterError):
         TOOL.run(ctx2, TOOL.resolve_params({"axis_wkt": "LINESTRING (0 0"}))
