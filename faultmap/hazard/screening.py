@@ -39,6 +39,7 @@ from dataclasses import dataclass, field
 
 import geopandas as gpd
 import numpy as np
+import pandas as pd
 
 from faultmap.hazard.caution import CAUTION
 from faultmap.hazard.inputs import _col, _compact, select_faults
@@ -170,7 +171,7 @@ def screen_hazard(
         if c == "fault_id":
             continue
         vals = r_all[c]
-        if vals.dtype == object or c in ("rate_flag", "event_displacement_source"):
+        if not pd.api.types.is_numeric_dtype(vals.dtype) or c in ("rate_flag", "event_displacement_source"):
             out[c] = vals.where(mask, "not_screened" if c == "rate_flag" else "").fillna("").to_numpy()
         else:
             out[c] = vals.to_numpy(float)

@@ -341,6 +341,18 @@ def slip_rates(
     src = np.where(use_rel, rel.key, src)
     rec = np.full((3, n), np.nan)
     has_rec = ok & np.isfinite(ev)
+    # like with like: the average displacement per event over the mean slip rate along the fault. With
+    # slip rates from the maximum throw, the mean rate is the maximum rate times mean/max throw (about 0.8
+    # for an elliptical profile); without a mean throw the maximum rate is used and the basis says so.
+    rate_scale = np.ones(n)
+    basis = np.full(n, "average event displacement / mean slip rate", dtype=object)
+    if throw_field == "max_throw_m":
+        mean_t = _col(sel, "mean_throw_m")
+        ratio = mean_t / throw
+        good = np.isfinite(ratio) & (ratio > 0) & (ratio <= 1)
+        rate_scale = np.where(good, ratio, 1.0)
+        basis = np.where(good, basis, "average event displacement / slip rate at the maximum throw (no mean throw)")
+    basis = np.where(has_rec, basis, "")
     pct = {comp: np.full((3, n), np.nan) for comp in ("vert", "horiz", "net")}
     if n:
         # the draws, block by block of faults (the same values as drawing all at once; bounded memory)
@@ -361,7 +373,8 @@ def slip_rates(
                 keep = has_rec[b]
                 if keep.any():
                     with np.errstate(divide="ignore", invalid="ignore"):
-                        r = (10.0 ** logd[keep]) * 1000.0 / draws["net"][keep]  # m / (mm/yr) * 1000 = yr
+                        net = draws["net"][keep] * rate_scale[b][keep][:, None]
+                        r = (10.0 ** logd[keep]) * 1000.0 / net  # m / (mm/yr) * 1000 = yr
                     rec[:, rows[keep]] = np.percentile(r, _PCT, axis=1)
         if rng_rec is not None:
             rec[:, ~has_rec] = np.nan
@@ -421,6 +434,7 @@ def slip_rates(
             "recurrence_yr": rec[1],
             "recurrence_p16_yr": rec[0],
             "recurrence_p84_yr": rec[2],
+            "recurrence_basis": basis,
         }
     )
     return table, _compact(warns)

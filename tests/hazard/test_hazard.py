@@ -185,17 +185,28 @@ def test_older_surface_lower_rate():
 
 
 def test_recurrence_is_event_displacement_over_rate():
-    # recurrence = single-event displacement / slip rate (definition; same basis for both):
-    # D 1 m, net rate T/(t sin 60) = 15/15/0.866 mm/yr -> 866 yr.
+    # recurrence = single-event displacement / slip rate, both on the same basis (definition; science
+    # review: the average displacement per event goes with the mean slip rate along the fault, not the
+    # rate at the maximum throw). D 1 m; net rate at the maximum T/(t sin 60) = 15/15/0.866 mm/yr; the
+    # mean rate is that times mean/max throw -> 866 yr * max/mean.
     f = make_faults([ns_line(0, 0, 10_000)], max_throw_err_m=np.array([0.0]))
     t, _ = slip_rates(f, age_rel_err=0.0, dip_range_deg=0.0, n_draws=200, event_displacement_m=1.0)
-    assert t["recurrence_yr"].iloc[0] == pytest.approx(1000.0 * math.sin(math.radians(60)), rel=1e-9)
+    mean_over_max = f["mean_throw_m"].iloc[0] / f["max_throw_m"].iloc[0]
+    assert 0 < mean_over_max < 1
+    expected = 1000.0 * math.sin(math.radians(60)) / mean_over_max
+    assert t["recurrence_yr"].iloc[0] == pytest.approx(expected, rel=1e-9)
+    assert t["recurrence_basis"].iloc[0] == "average event displacement / mean slip rate"
+    # without a mean throw the maximum rate is used, and the basis says so
+    t_max, _ = slip_rates(f.drop(columns="mean_throw_m"), age_rel_err=0.0, dip_range_deg=0.0, n_draws=200,
+                          event_displacement_m=1.0)
+    assert t_max["recurrence_yr"].iloc[0] == pytest.approx(1000.0 * math.sin(math.radians(60)), rel=1e-9)
+    assert "maximum throw" in t_max["recurrence_basis"].iloc[0]
     assert t["event_displacement_source"].iloc[0] == "user"
     # from W&C94 AD-on-M (from memory) at M 6.5: 10**(-4.45 + 0.63*6.5) m
     t2, _ = slip_rates(f, age_rel_err=0.0, dip_range_deg=0.0, n_draws=20_000, magnitude_for_displacement=np.array([6.5]))
     d = 10 ** (-4.45 + 0.63 * 6.5)
     assert t2["event_displacement_m"].iloc[0] == pytest.approx(d, rel=1e-12)
-    assert t2["recurrence_yr"].iloc[0] == pytest.approx(d * 1000 * math.sin(math.radians(60)), rel=0.03)
+    assert t2["recurrence_yr"].iloc[0] == pytest.approx(d * 1000 * math.sin(math.radians(60)) / mean_over_max, rel=0.03)
     assert t2["recurrence_p16_yr"].iloc[0] < t2["recurrence_yr"].iloc[0] < t2["recurrence_p84_yr"].iloc[0]
 
 
