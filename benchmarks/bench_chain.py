@@ -56,8 +56,7 @@ import tempfile
 import time
 from pathlib import Path
 
-CRS = "EPSG:32633"
-PIXEL_M = 10.0
+from bench_scene import CRS, PIXEL_M  # noqa: E402  (the shared scene)
 
 #: The chain, in run order (the runner adds what a tool requires first).
 TOOLS = ("prepare", "throw", "scaling", "transect", "strain", "width", "hazard")
@@ -68,9 +67,9 @@ def build_scene(folder: Path, n_pixels: int, n_faults: int, *, small: bool, seed
     import geopandas as gpd
     import numpy as np
     import pandas as pd
-    import rasterio
+    from bench_scene import write_scene_dem
 
-    from faultmap.synthetic import build_dem, fault_population
+    from faultmap.synthetic import fault_population
 
     t0 = time.perf_counter()
     side = n_pixels * PIXEL_M
@@ -103,25 +102,7 @@ def build_scene(folder: Path, n_pixels: int, n_faults: int, *, small: bool, seed
     rng = np.random.default_rng(seed)
     faults["active"] = rng.random(len(faults)) < 0.25  # the hazard tool screens these
     faults["surface_age_ka"] = np.where(faults["active"], 12.0, np.nan)
-    dem, transform, _ = build_dem(
-        faults,
-        origin_xy=(0.0, side),
-        pixel_size_m=PIXEL_M,
-        shape=(n_pixels, n_pixels),
-        relief_m=5.0,
-        relief_wavelength_m=4000.0,
-        regional_slope_deg=1.0,
-        scarp_width_m=30.0,
-        hanging_wall_extent_m=800.0,
-        seed=seed,
-    )
-    dem += np.random.default_rng(seed).normal(0.0, 0.3, dem.shape).astype(np.float32)
-    tif = folder / "dem.tif"
-    profile = dict(driver="GTiff", width=n_pixels, height=n_pixels, count=1, dtype="float32", crs=CRS,
-                   transform=transform, nodata=-9999.0, tiled=True, blockxsize=256, blockysize=256)
-    with rasterio.open(tif, "w", **profile) as ds:
-        ds.write(dem, 1)
-    del dem
+    tif = write_scene_dem(faults, folder, n_pixels, seed=seed)
     gpkg = folder / "faults.gpkg"
     faults.to_file(gpkg, layer="faults")
     return tif, gpkg, time.perf_counter() - t0

@@ -52,18 +52,17 @@ import time
 from pathlib import Path
 
 import numpy as np
+from bench_scene import CRS, PIXEL_M  # noqa: E402  (the shared scene)
 
-CRS = "EPSG:32633"
-PIXEL_M = 10.0
 #: Rounds of the timed runs (each times the step both ways and the raw gather; the best of each counts).
 ROUNDS = 5
 
 
 def build_scene(folder: Path, n_pixels: int, n_faults: int, seed: int = 3):
     """Synthetic rift: a fault population (D = gamma L) displacing a gently rough surface."""
-    import rasterio
+    from bench_scene import write_scene_dem
 
-    from faultmap.synthetic import build_dem, fault_population
+    from faultmap.synthetic import fault_population
 
     ext = (0.0, 0.0, n_pixels * PIXEL_M, n_pixels * PIXEL_M)
     t0 = time.perf_counter()
@@ -78,36 +77,7 @@ def build_scene(folder: Path, n_pixels: int, n_faults: int, seed: int = 3):
         seed=seed,
         crs=CRS,
     )
-    dem, transform, _ = build_dem(
-        faults,
-        origin_xy=(0.0, n_pixels * PIXEL_M),
-        pixel_size_m=PIXEL_M,
-        shape=(n_pixels, n_pixels),
-        relief_m=5.0,
-        relief_wavelength_m=4000.0,
-        regional_slope_deg=1.0,
-        scarp_width_m=30.0,
-        hanging_wall_extent_m=800.0,
-        seed=seed,
-    )
-    dem += np.random.default_rng(seed).normal(0.0, 0.3, dem.shape).astype(np.float32)
-    tif = folder / "dem.tif"
-    with rasterio.open(
-        tif,
-        "w",
-        driver="GTiff",
-        width=n_pixels,
-        height=n_pixels,
-        count=1,
-        dtype="float32",
-        crs=CRS,
-        transform=transform,
-        nodata=-9999.0,
-        tiled=True,
-        blockxsize=256,
-        blockysize=256,
-    ) as ds:
-        ds.write(dem, 1)
+    tif = write_scene_dem(faults, folder, n_pixels, seed=seed)
     faults = faults.copy()
     faults["fault_id"] = np.arange(1, len(faults) + 1)
     gpkg = folder / "faults.gpkg"
