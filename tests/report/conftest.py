@@ -92,9 +92,9 @@ def small_run_info(tools="prepare,throw,scaling,transect,strain,width,hazard") -
     """A run_info table as the runner writes it (paths and values invented)."""
     rows = [
         ("faultmap_version", "0.1.0"), ("run_utc", "2030-01-01T00:00:00Z"), ("tools", tools),
-        ("output", "/home/someone/work/out/results.gpkg"), ("engine", "in-process, 1 thread(s)"),
+        ("output", "/data/someone/project/out/results.gpkg"), ("engine", "in-process, 1 thread(s)"),
         ("working_crs_name", "WGS 84 / UTM zone 53S"), ("working_crs_wkt", 'PROJCRS["WGS 84 / UTM zone 53S"]'),
-        ("input.faults", "/home/someone/work/data/traces.gpkg"), ("input.faults.size_bytes", "12345"),
+        ("input.faults", "/data/someone/project/data/traces.gpkg"), ("input.faults.size_bytes", "12345"),
         ("input.faults.checksum", "sha256:abc123"), ("input.faults_layer", "traces"),
         ("input.dem", "C:\\data\\dem.tif"), ("input.dem.checksum", "sha256:def456"), ("input.dem_nodata", "-9999.0"),
         ("param.throw.station_spacing_m", ""), ("param.throw.robust_loss", "tukey"),
@@ -104,7 +104,7 @@ def small_run_info(tools="prepare,throw,scaling,transect,strain,width,hazard") -
         ("transect.median_extension", "0.008"), ("transect.median_beta", "1.008"),
         ("hazard.n_screened", "1"), ("hazard.caution", "SCREENING ONLY."),
         ("notice.1", "prepare: 3 traces."),
-        ("warning.1", "prepare: /home/someone/work/data/traces.gpkg, layer 'traces': default dip used."),
+        ("warning.1", "prepare: /data/someone/project/data/traces.gpkg, layer 'traces': default dip used."),
         ("warning.2", "throw: see https://example.org/help for <details>"),
         ("warning.3", "hazard: magnitude outside the data range"),
         ("warning.10", "width: the tenth warning"),
