@@ -308,6 +308,19 @@ def analyse_scaling(
         )
 
     ratio_units = (pop["disp_m"] / pop["length_m"]).to_numpy(float)
+    compared_as = "dip-slip displacement"
+    if displacement == "throw":
+        # like with like: published D/L ratios are of maximum (dip-slip) displacement, D = T / sin(dip)
+        sdip = np.sin(np.deg2rad(pop["dip_deg"].to_numpy(float)))
+        known = np.isfinite(sdip) & (sdip > 0)
+        if known.any():
+            ratio_units = np.where(known, ratio_units / np.where(known, sdip, 1.0), np.nan)
+            compared_as = "dip-slip displacement from throw (T / sin dip)"
+            notes.append("maximum throws converted to dip-slip displacement (T / sin dip) for the comparison with "
+                         "published D/L ranges (compared_as in the reference rows)")
+        else:
+            compared_as = "throw (no dip known: published D/L ranges are of displacement, so ratios read low)"
+            notes.append("no dip known: throw/L compared with published D/L (displacement) ranges reads low by sin(dip)")
     refs = compare_to_references(ratio_units[pop["used"].to_numpy(bool)], fits)
     variable = _displacement_name(displacement)
     rows = _fit_rows(
@@ -331,6 +344,7 @@ def analyse_scaling(
                 "frac_within": rr["frac_within"],
                 "frac_above": rr["frac_above"],
                 "consistent": rr["consistent"],
+                "compared_as": compared_as if rr["quantity"] == "d_l_ratio" else "",
                 "n_faults": rr["n_faults"],
                 "include_censored": include_censored,
                 "fitted": True,
