@@ -62,7 +62,17 @@ def run(ctx, p: dict) -> None:
     cells, whole = gather_kostrov_tiles(parts, grid)
     ctx.record("n_batches", len(tiles))
     ctx.layers["strain_cells"] = cells
+    # the whole-area tensor: over the study area when given, else over the convex hull of the traces
+    # (a basis that does not depend on the cell size; the cells' own areas would)
     summary_area = "grid cells with faults" if not p["keep_empty"] else "whole grid"
+    hull = shapely.convex_hull(shapely.multilinestrings(faults.geometry.values))
+    if hull.area > 0:
+        from faultmap.extension.strain_tensors import whole_area_strain
+
+        m = np.array([[whole["moment_xx_m2"], whole["moment_xy_m2"]], [whole["moment_xy_m2"], whole["moment_yy_m2"]]])
+        moments = {k: whole[k] for k in ("moment_xx_m2", "moment_yy_m2", "moment_xy_m2", "n_faults")}
+        whole = {**whole_area_strain(m, float(hull.area)), "area_m2": float(hull.area), **moments}
+        summary_area = f"convex hull of the fault traces ({hull.area / 1e6:.4g} km2)"
     areas = None
     if ctx.study_area is not None and len(ctx.study_area):
         areas, whole_sa = kostrov_polygons(

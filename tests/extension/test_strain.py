@@ -343,3 +343,27 @@ def test_tool_wrapper_grid_and_study_area():
     # whole-area tensor over the study area: M / A (Kostrov 1974, map view)
     assert ctx.records["strain.whole.exx"] == pytest.approx(M[0, 0] / (7e4 * 6e4), rel=1e-6)
     assert ctx.layers["strain_areas"]["n_faults"].iloc[0] == len(faults)
+
+
+def test_whole_area_strain_does_not_depend_on_the_cell_size():
+    # Science review: without a study area the whole-area tensor was averaged over fault-bearing cells,
+    # so it changed with the cell size. Its basis is now the convex hull of the traces: eps = M / A_hull
+    # (Kostrov 1974, map view), the same for any grid, with the basis named in run_info.
+    from pyproj import CRS as _CRS
+
+    from faultmap.extension.strain_tool import TOOL
+    from faultmap.runner import RunContext
+
+    faults, stations = oblique_scene()
+    hull = shapely.convex_hull(shapely.multilinestrings(faults.geometry.values)).area
+    M = fault_moment_sum(faults)
+    seen = []
+    for cell in (1000.0, 2000.0, 5000.0):
+        ctx = RunContext(crs=_CRS.from_user_input(faults.crs))
+        ctx.layers.update(faults=faults, throw_stations=stations)
+        ctx.current_tool = "strain"
+        TOOL.run(ctx, TOOL.resolve_params({"cell_size_m": cell}))
+        seen.append(ctx.records["strain.whole.exx"])
+        assert ctx.records["strain.whole.area_m2"] == pytest.approx(hull, rel=1e-12)
+        assert ctx.records["strain.whole_area_basis"].startswith("convex hull of the fault traces")
+    assert seen == pytest.approx([M[0, 0] / hull] * 3, rel=1e-6)
