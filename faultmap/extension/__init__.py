@@ -33,7 +33,6 @@ _EXPORTS = {
     "kostrov_tile": "kostrov_tiles",
     "gather_kostrov_tiles": "kostrov_tiles",
     "fraction_below_detection": "subresolution",
-    "detection_throw_m": "subresolution",
     "corrected_sum": "subresolution",
 }
 __all__ = list(_EXPORTS)

@@ -15,7 +15,7 @@ from numpy.typing import ArrayLike
 
 from faultmap.errors import ParameterError
 
-__all__ = ["fraction_below_detection", "detection_throw_m", "corrected_sum"]
+__all__ = ["fraction_below_detection", "corrected_sum"]
 
 
 def fraction_below_detection(
@@ -80,49 +80,6 @@ def fraction_below_detection(
         f = (dt**q - d_min**q) / (d_max**q - d_min**q)
     f = np.where(np.isnan(np.asarray(d_t, dtype=float)), np.nan, f)
     return np.clip(f, 0.0, 1.0)
-
-
-def detection_throw_m(
-    *,
-    throw_err_m: ArrayLike | None = None,
-    pixel_size_m: float | None = None,
-    k_sigma: float = 2.0,
-) -> float:
-    """Smallest throw resolved by the DEM, m.
-
-    Parameters
-    ----------
-    throw_err_m : array_like, optional
-        1-sigma throw errors of the measured stations, m (NaN ignored).
-    pixel_size_m : float, optional
-        DEM pixel size, m. Used when no throw error is available.
-    k_sigma : float
-        Multiple of the median throw error taken as detectable (default 2).
-
-    Returns
-    -------
-    float
-        ``k_sigma * median(throw_err_m)`` when errors exist, else
-        ``pixel_size_m``; NaN when neither is given.
-
-    Notes
-    -----
-    Our rule, not a published one: a throw is taken as detectable when it
-    exceeds ``k_sigma`` times the typical measurement error (a 2-sigma
-    detection is common practice). Without errors, a scarp one pixel high
-    over one pixel (a 45 deg step) is taken as the smallest resolvable
-    offset.
-    """
-    if k_sigma <= 0:
-        raise ParameterError(f"k_sigma must be positive, got {k_sigma!r}.")
-    if throw_err_m is not None:
-        err = np.asarray(throw_err_m, dtype=float)
-        err = err[np.isfinite(err) & (err > 0)]
-        if err.size:
-            return float(k_sigma * np.median(err))
-    if pixel_size_m is not None and np.isfinite(pixel_size_m) and pixel_size_m > 0:
-        return float(pixel_size_m)
-    return float("nan")
 
 
 def corrected_sum(measured: ArrayLike, fraction_below: ArrayLike) -> np.ndarray:

@@ -70,13 +70,13 @@ def scaling_line_exponent(result) -> tuple[float | None, str]:
 
 def run(ctx, p: dict) -> None:
     """Measure extension along the user's or automatic transects."""
-    from faultmap.extension.subresolution import detection_throw_m
     from faultmap.extension.transect_batches import (
         gather_transect_batches,
         measure_transect_batch,
         plan_transect_batches,
     )
     from faultmap.extension.transect_layout import auto_transects, mean_strike_deg
+    from faultmap.throw.detection import detection_throw_m, station_errors
 
     faults = ctx.faults
     if faults is None or len(faults) == 0:
@@ -111,10 +111,7 @@ def run(ctx, p: dict) -> None:
     # sub-resolution correction: exponent and detection threshold
     d_t = p["detection_throw_m"]
     if d_t is None:
-        errs = None
-        if stations is not None and "throw_err_m" in stations.columns:
-            ok = stations["status"].astype(str).to_numpy() == "ok" if "status" in stations.columns else True
-            errs = stations["throw_err_m"].to_numpy(dtype=float)[ok]
+        errs = station_errors(stations)
         d_t = detection_throw_m(throw_err_m=errs, pixel_size_m=ctx.dem.pixel_size if ctx.dem is not None else None)
         ctx.record("detection_throw_m_used", d_t)
     use_sub = bool(p["subresolution"])

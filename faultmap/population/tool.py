@@ -14,17 +14,21 @@ from faultmap.errors import InputError
 from faultmap.registry import Param, Tool
 
 
-def _detection_throw(faults, given: float | None) -> tuple[float, str]:
-    """Return the detection throw (m): the parameter, or 3 x the median throw error (our rule)."""
+def _detection_throw(ctx, faults, given: float | None) -> tuple[float, str]:
+    """Return the detection throw (m): the parameter, or the rule every tool shares (2 x median station error)."""
+    from faultmap.throw.detection import detection_throw_m, station_errors
+
     if given is not None:
         return float(given), "parameter"
-    if "max_throw_err_m" in faults:
-        e = np.asarray(faults["max_throw_err_m"], dtype=float)
-        e = e[np.isfinite(e) & (e > 0)]
-        if e.size:
-            return float(3.0 * np.median(e)), "3 x median max_throw_err_m"
-    return float("nan"), "not available (no throw errors)"
-
+    errs = station_errors(ctx.layers.get("throw_stations"))
+    source = "2 x median throw error of the ok stations"
+    if errs is None and "max_throw_err_m" in faults:  # no station table (throws given per fault)
+        errs, source = np.asarray(faults["max_throw_err_m"], dtype=float), "2 x median max_throw_err_m"
+    pixel = ctx.dem.pixel_size if getattr(ctx, "dem", None) is not None else None
+    value = detection_throw_m(throw_err_m=errs, pixel_size_m=pixel)
+    if errs is None or not np.isfinite(np.asarray(errs, float)).any():
+        source = "one DEM pixel (no throw errors)" if np.isfinite(value) else "not available (no throw errors)"
+    return value, source
 
 def run(ctx, p: dict) -> None:
     """Fit D-L scaling and size distributions of ``ctx.faults``."""
@@ -42,7 +46,7 @@ def run(ctx, p: dict) -> None:
     if "max_throw_m" not in faults:
         raise InputError("scaling: the faults layer has no max_throw_m; run the throw tool first.")
     stations = ctx.layers.get("throw_stations")
-    det_t, det_src = _detection_throw(faults, p["detection_throw_m"])
+    det_t, det_src = _detection_throw(ctx, faults, p["detection_throw_m"])
     ctx.record("detection_throw_m_used", det_t)
     ctx.record("detection_throw_source", det_src)
 
@@ -215,7 +219,8 @@ TOOL = Tool(
             "detection_throw_m",
             float,
             None,
-            "Smallest throw the DEM resolves. Default: 3 x the median max_throw_err_m.",
+            "Smallest throw the DEM resolves. Default: 2 x the median throw error of the ok stations (the rule the "
+            "transect tool uses too), else one DEM pixel.",
             unit="m",
             min=0.0,
             min_exclusive=True,

@@ -11,6 +11,7 @@ package (or its tool declaration) stays light.
 from faultmap.lazy import lazy_exports
 
 _EXPORTS = {
+    "detection_throw_m": "detection",
     "ThrowParams": "params",
     "ThrowBatch": "batches",
     "ThrowResult": "step",

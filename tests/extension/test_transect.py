@@ -14,10 +14,11 @@ import pytest
 import shapely
 
 from faultmap.errors import CRSError, FaultmapWarning, InputError, ParameterError
-from faultmap.extension.subresolution import corrected_sum, detection_throw_m, fraction_below_detection
+from faultmap.extension.subresolution import corrected_sum, fraction_below_detection
 from faultmap.extension.throw_profiles import throw_at
 from faultmap.extension.transect_layout import auto_transects, mean_strike_deg
 from faultmap.extension.transect_measure import measure_transects
+from faultmap.throw.detection import detection_throw_m
 
 CRS = "EPSG:32636"
 

@@ -494,9 +494,11 @@ def test_tool_wrapper_on_a_hand_built_context(tmp_path):
     assert {"ols", "rma", "york", "power_law", "reference"} <= set(table.model)
     assert set(table.loc[table.model == "power_law", "variable"]) == {"length_m", "max_throw_m"}
     assert {"scaling_flag", "d_l_ratio", "scaling_hint"} <= set(ctx.faults.columns)
-    # our default detection throw: 3 x median throw error (recorded in run_info)
-    expect = 3 * np.median(g["max_throw_err_m"])
+    # our default detection throw, one rule for every tool (science review): 2 x the median throw error
+    # (a 2-sigma detection, common practice); without a station table, of the faults' max_throw_err_m
+    expect = 2 * np.median(g["max_throw_err_m"])
     assert ctx.records["scaling.detection_throw_m_used"] == pytest.approx(expect)
+    assert ctx.records["scaling.detection_throw_source"] == "2 x median max_throw_err_m"
     assert (tmp_path / "scaling_dl.png").stat().st_size > 10_000
     assert (tmp_path / "scaling_sizes.png").stat().st_size > 10_000
     # the layers survive a GeoPackage round trip
