@@ -304,8 +304,11 @@ def test_demo_runs_every_tool_with_figures(tmp_path):
     res = run_project(paths["project"], quiet=True, echo=_quiet)
     registry = load_tools()
     info = pyogrio.read_dataframe(res.gpkg, layer="run_info")
-    ran = dict(zip(info["key"], info["value"], strict=True))["tools"].split(",")
+    kv = dict(zip(info["key"], info["value"], strict=True))
+    ran = kv["tools"].split(",")
     assert sorted(ran) == sorted(registry)
+    # one detection limit for every tool (science review: scaling and transect used different rules)
+    assert float(kv["scaling.detection_throw_m_used"]) == float(kv["transect.detection_throw_m_used"]) > 0
     layers = {name for name, _ in pyogrio.list_layers(res.gpkg)}
     for name, tool in registry.items():
         for layer in tool.layers:
