@@ -56,7 +56,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from bench_scene import CRS, PIXEL_M  # noqa: E402  (the shared scene)
+from bench_scene import CRS, PIXEL_M, vm_hwm_kb  # noqa: E402  (the shared scene)
 
 #: The chain, in run order (the runner adds what a tool requires first).
 TOOLS = ("prepare", "throw", "scaling", "transect", "strain", "width", "hazard")
@@ -108,17 +108,6 @@ def build_scene(folder: Path, n_pixels: int, n_faults: int, *, small: bool, seed
     return tif, gpkg, time.perf_counter() - t0
 
 
-def _vm_hwm_kb() -> int:
-    """Peak resident memory of this process since start or the last reset, kB (Linux; 0 elsewhere)."""
-    try:
-        with open("/proc/self/status") as fh:
-            for line in fh:
-                if line.startswith("VmHWM:"):
-                    return int(line.split()[1])
-    except OSError:  # pragma: no cover - not Linux
-        pass
-    return 0
-
 
 def _reset_hwm() -> bool:
     """Reset this process's peak resident memory to its current size (Linux >= 4.0)."""
@@ -161,7 +150,7 @@ def _instrumented(registry: dict, profile: set[str], mem: dict, stats: dict) -> 
                 else:
                     _run(ctx, params)
             finally:
-                mem[_name] = _vm_hwm_kb() if ok else 0
+                mem[_name] = vm_hwm_kb() if ok else 0
                 if prof is not None:
                     buf = io.StringIO()
                     pstats.Stats(prof, stream=buf).sort_stats("cumulative").print_stats(40)
@@ -181,7 +170,7 @@ def child(tif: str, gpkg: str, warm_tif: str, warm_gpkg: str, out_dir: str, prof
     inputs_w = {"faults": warm_gpkg, "faults_layer": "faults", "dem": warm_tif}
     faultmap.run_tools(TOOLS, inputs=inputs_w, out=out_dir / "warm.gpkg", figures=out_dir / "warm_fig", quiet=True)
     t_warm = time.perf_counter() - t0
-    base = _vm_hwm_kb()
+    base = vm_hwm_kb()
     mem: dict = {}
     stats: dict = {}
     tools = _instrumented(load_tools(), set(profile), mem, stats)
@@ -196,7 +185,7 @@ def child(tif: str, gpkg: str, warm_tif: str, warm_gpkg: str, out_dir: str, prof
         tools=tools,
     )
     total = time.perf_counter() - t0
-    peak = max([_vm_hwm_kb(), *mem.values()])  # the high-water mark was reset before each tool
+    peak = max([vm_hwm_kb(), *mem.values()])  # the high-water mark was reset before each tool
     info = dict(zip(res.run_info["key"], res.run_info["value"], strict=True))
     figs = {p.name: _png_size(p) for p in res.figures if p.suffix.lower() == ".png"}
     faults = res.layers.get("faults")

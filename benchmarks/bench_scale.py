@@ -36,17 +36,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
 
-
-def _vm_hwm_kb() -> int:
-    """Peak resident memory of this process, kB (Linux /proc; 0 elsewhere)."""
-    try:
-        with open("/proc/self/status") as fh:
-            for line in fh:
-                if line.startswith("VmHWM:"):
-                    return int(line.split()[1])
-    except OSError:  # pragma: no cover - not Linux
-        pass
-    return 0
+from bench_scene import vm_hwm_kb  # noqa: E402  (the benchmarks' shared helpers)
 
 
 def _worker_memory() -> dict:
@@ -54,7 +44,7 @@ def _worker_memory() -> dict:
     import tracemalloc
 
     peak = tracemalloc.get_traced_memory()[1] if tracemalloc.is_tracing() else 0
-    return {"vmhwm_kb": _vm_hwm_kb(), "traced_peak_b": peak}
+    return {"vmhwm_kb": vm_hwm_kb(), "traced_peak_b": peak}
 
 
 def _start_tracing() -> None:

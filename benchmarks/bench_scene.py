@@ -1,4 +1,4 @@
-"""The synthetic DEM the benchmarks share (a module of the benchmark scripts, not a benchmark).
+"""What the benchmark scripts share: the synthetic scene DEM and the peak-memory reading (not a benchmark).
 
 A fault population displacing a gently rough, gently tilted surface, built with faultmap's scene builder
 (``faultmap.synthetic.build_dem``) plus 0.3 m of pixel noise, written as a tiled float32 GeoTIFF.
@@ -59,4 +59,16 @@ def write_scene_dem(faults, folder: Path, n_pixels: int, *, seed: int = 3) -> Pa
     return tif
 
 
-__all__ = ["CRS", "PIXEL_M", "write_scene_dem"]
+def vm_hwm_kb() -> int:
+    """Peak resident memory of this process since start (or a reset), kB: VmHWM of Linux /proc; 0 elsewhere."""
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1])
+    except OSError:  # pragma: no cover - not Linux
+        pass
+    return 0
+
+
+__all__ = ["CRS", "PIXEL_M", "write_scene_dem", "vm_hwm_kb"]

@@ -52,7 +52,7 @@ import time
 from pathlib import Path
 
 import numpy as np
-from bench_scene import CRS, PIXEL_M  # noqa: E402  (the shared scene)
+from bench_scene import CRS, PIXEL_M, vm_hwm_kb  # noqa: E402  (the shared scene)
 
 #: Rounds of the timed runs (each times the step both ways and the raw gather; the best of each counts).
 ROUNDS = 5
@@ -217,15 +217,8 @@ def breakdown(faults, dem, rounds=3):
 
 
 def _vm_hwm_kb():
-    """Peak resident set size of this process (VmHWM, reset at exec, unlike ru_maxrss on Linux)."""
-    try:
-        with open("/proc/self/status") as fh:
-            for line in fh:
-                if line.startswith("VmHWM:"):
-                    return int(line.split()[1])
-    except OSError:  # pragma: no cover - not Linux
-        pass
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    """Peak resident set size of this process (VmHWM, reset at exec; ru_maxrss where there is no /proc)."""
+    return vm_hwm_kb() or resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
 
 
 def child_memory(tif, gpkg, budget_mb):
