@@ -400,8 +400,8 @@ def run_tools(
     -------
     RunResult
     """
-    from faultmap.io.gpkg import check_target, stage_gpkg, temporary_name
-    from faultmap.io.outputs import commit_outputs, staged_name
+    from faultmap.io.gpkg import check_target, stage_gpkg
+    from faultmap.io.outputs import commit_outputs, staged_name, temporary_name
 
     registry = load_tools() if tools is None else tools
     params = {k: dict(v or {}) for k, v in (params or {}).items()}

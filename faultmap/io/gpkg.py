@@ -15,7 +15,6 @@ import shutil
 import sqlite3
 import tempfile
 import time
-import uuid
 from pathlib import Path
 
 import geopandas as gpd
@@ -23,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from faultmap.errors import OutputError
+from faultmap.io.outputs import recover_outputs, temporary_name
 
 __all__ = ["check_target", "write_gpkg", "check_conformance", "sanitize_columns", "GPKG_APPLICATION_ID"]
 
@@ -40,15 +40,6 @@ _SQL_RESERVED = {
 #: Free space an output folder must have before a run starts, bytes (our margin for the GeoPackage,
 #: its journal and the figures of a regional run).
 MIN_FREE_BYTES = 64 * 1024**2
-
-
-def temporary_name(target: Path, kind: str, suffix: str) -> Path:
-    """Hidden name beside ``target`` for a file or folder being written, carrying this process's id.
-
-    The id lets a later run tell the left-overs of a killed run (its process is gone) from the files of
-    a run still writing; see :func:`remove_stale_temporaries`.
-    """
-    return target.parent / f".{target.stem}.{kind}.{os.getpid()}-{uuid.uuid4().hex[:8]}.tmp{suffix}"
 
 
 def _pid_alive(pid: int) -> bool:
@@ -140,8 +131,6 @@ def check_target(target, *, overwrite: bool, inputs=(), folders=()) -> Path:
         raise OutputError(f"{p}: is a folder; name a .gpkg file.")
     if p.exists() and not overwrite:
         raise OutputError(f"{p}: exists already; use --overwrite (or overwrite = true) to replace it.")
-    from faultmap.io.outputs import recover_outputs
-
     recover_outputs(p)  # a commit a killed run left half done: back to its earlier outputs, or forward
     remove_stale_temporaries(p, folders)
     try:

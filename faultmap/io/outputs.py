@@ -23,7 +23,7 @@ import os
 import uuid
 from pathlib import Path
 
-__all__ = ["staged_name", "commit_outputs", "recover_outputs", "previous_outputs"]
+__all__ = ["temporary_name", "staged_name", "commit_outputs", "recover_outputs", "previous_outputs"]
 
 
 def _journal(target: Path) -> Path:
@@ -34,13 +34,20 @@ def _manifest(target: Path) -> Path:
     return target.parent / f".{target.stem}.manifest.json"
 
 
-def staged_name(target: Path, dest: Path) -> Path:
-    """Hidden temporary name for ``dest`` in its own folder (so the final move is an atomic rename).
+def temporary_name(target: Path, kind: str, suffix: str, *, folder: Path | None = None) -> Path:
+    """Hidden name for a file or folder being written for ``target``, carrying this process's id.
 
-    The name carries ``target``'s stem and this process's id, so that a later run's clean-up of a killed
-    run's left-overs finds it (``faultmap.io.gpkg.remove_stale_temporaries``).
+    ``.STEM.KIND.PID-RANDOM.tmpSUFFIX`` in ``folder`` (default: ``target``'s). The id lets a later run tell
+    the left-overs of a killed run (its process is gone) from the files of a run still writing; see
+    ``faultmap.io.gpkg.remove_stale_temporaries``.
     """
-    return dest.parent / f".{target.stem}.{dest.name}.{os.getpid()}-{uuid.uuid4().hex[:8]}.tmp"
+    where = target.parent if folder is None else Path(folder)
+    return where / f".{target.stem}.{kind}.{os.getpid()}-{uuid.uuid4().hex[:8]}.tmp{suffix}"
+
+
+def staged_name(target: Path, dest: Path) -> Path:
+    """Hidden temporary name for ``dest`` in its own folder (so the final move is an atomic rename)."""
+    return temporary_name(target, dest.name, "", folder=dest.parent)
 
 
 def _write_json(path: Path, data: dict) -> None:

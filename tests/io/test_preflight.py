@@ -16,7 +16,8 @@ import pytest
 
 import faultmap.io.gpkg as gpkg
 from faultmap.errors import OutputError
-from faultmap.io.gpkg import check_target, remove_stale_temporaries, temporary_name
+from faultmap.io.gpkg import check_target, remove_stale_temporaries
+from faultmap.io.outputs import temporary_name
 
 
 def test_output_naming_an_input_is_refused_even_with_overwrite(tmp_path):
