@@ -53,7 +53,10 @@ def run(ctx, p: dict) -> None:
 
     n_draws = p["n_draws"]
     if n_draws is None:
-        n_sel = len(ids) if ids is not None else int(faults["active"].astype(bool).sum()) if "active" in faults else 0
+        if ids is not None:
+            n_sel = len(ids)
+        else:  # the faults marked active are the ones screened
+            n_sel = int(faults["active"].astype(bool).sum()) if "active" in faults else 0
         n_draws = draws_per_fault(n_sel)
         ctx.record("n_draws_rule", f"auto: {n_draws} draws per fault for {n_sel} faults")
     ctx.record("n_draws_used", n_draws)
