@@ -18,6 +18,8 @@ def test_tiny_dem_exits_2_and_writes_nothing(cli, tmp_path):
     assert res.exit_code == 2, res.output
     errors = [line for line in res.output.strip().splitlines() if line.startswith("error")]
     assert len(errors) == 1 and "tiny.tif" in errors[0] and "no throw could be measured" in errors[0]
+    # a profile needs min_samples_per_side (default 10) valid samples on each side of the trace, plus the
+    # trace pixel: 2 x 10 + 1 = 21 pixels across (our rule, the throw tool's parameter)
     assert "3 x 3 pixels" in errors[0] and "at least 21 pixels" in errors[0]
     assert res.output.strip().splitlines()[-1] == errors[0]
     assert not out.exists()
