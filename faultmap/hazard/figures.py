@@ -62,8 +62,9 @@ def relations_caption() -> str:
     """Caption of :func:`magnitude_by_relation` (includes the caution)."""
     return (
         "Moment magnitude of each rupture scenario by empirical relation, with one-sigma "
-        "bars (Wells & Coppersmith 1994: residual sigma; Hanks & Bakun 2002: intercept "
-        "uncertainty only). Black bar: preferred estimate. " + CAUTION
+        "bars: scatter of single earthquakes about each relation (Wells & Coppersmith 1994: "
+        "published residual sigma; Hanks & Bakun 2002: adopted, the Wells & Coppersmith "
+        "all-slip area sigma). Black bar: preferred estimate. " + CAUTION
     )
 
 
@@ -317,7 +318,7 @@ def magnitude_by_relation(
         rel = get_relation(k)
         ax.errorbar(
             x[ok] - 0.4 + width * (j + 0.5), m[ok], yerr=s[ok], fmt=markers[j % len(markers)], ms=5,
-            capsize=2, lw=1, label=_LABELS.get(k, k) + ("\n(bar: intercept s.e.)" if rel.sigma_kind == "intercept_se" else ""),
+            capsize=2, lw=1, label=_LABELS.get(k, k) + ("\n(bar: adopted sigma)" if rel.sigma_kind == "adopted" else ""),
         )
     if len(sc):
         pref = sc["mag_preferred"].to_numpy(float)

@@ -59,6 +59,8 @@ __all__ = [
     "moment_magnitude",
     "moment_from_magnitude",
     "magnitude_table",
+    "AREA_RULE_KEYS",
+    "area_rule_weights",
     "preferred_magnitude",
 ]
 
@@ -105,8 +107,11 @@ class Relation:
         Bilinear relations (Hanks & Bakun 2002): above ``break_x`` use
         ``a_above``, ``b_above`` and ``sigma_above``.
     sigma_kind : str
-        ``residual`` (scatter of the observations about the line) or
-        ``intercept_se`` (standard error of the intercept only).
+        ``residual`` (the published scatter of the observations about the
+        line) or ``adopted`` (no published prediction scatter; faultmap's
+        documented stand-in, named in ``note``). Every ``sigma`` is a
+        scatter of single earthquakes, so sigmas of different relations are
+        comparable.
     note : str
         Where each number was checked, and cautions.
     """
@@ -135,6 +140,8 @@ class Relation:
 
 _WC94 = "Wells & Coppersmith (1994), BSSA 84(4), 974-1002"
 
+# One row per relation, laid out as a table.
+# fmt: off
 #: The one table of relation coefficients used anywhere in faultmap.
 RELATIONS: tuple[Relation, ...] = (
     Relation(
@@ -175,16 +182,19 @@ RELATIONS: tuple[Relation, ...] = (
     Relation(
         key="hb02", source="Hanks & Bakun (2002), BSSA 92(5), 1841-1846",
         form="m_on_x", quantity="ra", unit="km2", slip_type="all",
-        a=3.98, b=1.0, sigma=0.03, n=0,
+        a=3.98, b=1.0, sigma=0.24, n=0,
         mag_range=(4.8, 7.9), x_range=(2.2, 5184.0),
         confidence="verified", range_confidence="from memory",
-        break_x=537.0, a_above=3.07, b_above=4.0 / 3.0, sigma_above=0.04,
-        sigma_kind="intercept_se",
+        break_x=537.0, a_above=3.07, b_above=4.0 / 3.0, sigma_above=0.24,
+        sigma_kind="adopted",
         note="M = log A + 3.98 +- 0.03 (A <= 537 km2), 4/3 log A + 3.07 +- "
-        "0.04 above (abstract, verified). The +- values are intercept "
-        "uncertainties, not the scatter of single earthquakes; the data "
-        "range is that of the Wells & Coppersmith (1994) set they fitted "
-        "(from memory).",
+        "0.04 above (abstract, verified). The +- values are the standard "
+        "errors of the intercepts, not the scatter of single earthquakes, so "
+        "they are NOT used as sigma. Adopted rule (faultmap, no published "
+        "prediction scatter found): sigma = 0.24, the residual sigma of Wells "
+        "& Coppersmith (1994) M on RA for all slip types, the continental data "
+        "set Hanks & Bakun fitted (from memory). The upper branch rests on "
+        "large strike-slip ruptures (from memory); see preferred_magnitude.",
     ),
     Relation(
         key="md_wc94", source=_WC94 + ", Table 2B", form="m_on_x",
@@ -237,6 +247,7 @@ RELATIONS: tuple[Relation, ...] = (
         note="log10(AD) on M, all slip types.",
     ),
 )
+# fmt: on
 
 _BY_KEY = {r.key: r for r in RELATIONS}
 
@@ -252,9 +263,7 @@ def get_relation(key: str) -> Relation:
     try:
         return _BY_KEY[key]
     except KeyError:
-        raise ParameterError(
-            f"unknown magnitude relation {key!r}; use one of {', '.join(_BY_KEY)}"
-        ) from None
+        raise ParameterError(f"unknown magnitude relation {key!r}; use one of {', '.join(_BY_KEY)}") from None
 
 
 def _positive(x: ArrayLike, what: str) -> np.ndarray:
@@ -290,7 +299,9 @@ def magnitude(key: str, x: ArrayLike) -> np.ndarray:
     """
     rel = get_relation(key)
     if rel.form != "m_on_x":
-        raise ParameterError(f"relation {key!r} gives a displacement, not a magnitude; use displacement_from_magnitude")
+        raise ParameterError(
+            f"relation {key!r} gives a displacement, not a magnitude; use displacement_from_magnitude"
+        )
     arr = _positive(x, f"{rel.quantity} ({rel.unit})")
     with np.errstate(divide="ignore", invalid="ignore"):
         lx = np.log10(arr)
@@ -303,9 +314,11 @@ def magnitude(key: str, x: ArrayLike) -> np.ndarray:
 def magnitude_sigma(key: str, x: ArrayLike) -> np.ndarray:
     """Return the standard deviation of :func:`magnitude` for relation ``key`` at ``x``.
 
-    Returns the published sigma (magnitude units) broadcast to the shape of
-    ``x``, NaN where ``x`` is NaN. For Hanks & Bakun (2002) this is the
-    intercept uncertainty (``sigma_kind == "intercept_se"``), not the scatter.
+    Returns the relation's sigma (magnitude units) broadcast to the shape of
+    ``x``, NaN where ``x`` is NaN: the scatter of single earthquakes about the
+    line, published (``sigma_kind == "residual"``) or, for Hanks & Bakun
+    (2002), who give only the standard errors of their intercepts, the
+    adopted stand-in of :data:`RELATIONS` (``sigma_kind == "adopted"``).
     """
     rel = get_relation(key)
     arr = np.asarray(x, dtype=float)
@@ -334,7 +347,9 @@ def displacement_from_magnitude(mag: ArrayLike, *, key: str = "ad_on_m_wc94") ->
     """
     rel = get_relation(key)
     if rel.form != "x_on_m":
-        raise ParameterError(f"relation {key!r} gives a magnitude; use an x_on_m relation such as 'ad_on_m_wc94'")
+        raise ParameterError(
+            f"relation {key!r} gives a magnitude; use an x_on_m relation such as 'ad_on_m_wc94'"
+        )
     return 10.0 ** (rel.a + rel.b * np.asarray(mag, dtype=float))
 
 
@@ -396,7 +411,9 @@ def downdip_width_km(thickness_km: ArrayLike, dip_deg: ArrayLike) -> np.ndarray:
     return np.asarray(thickness_km, dtype=float) / np.sin(np.radians(dip))
 
 
-def seismic_moment(area_m2: ArrayLike, slip_m: ArrayLike, *, shear_modulus_pa: float = SHEAR_MODULUS_PA) -> np.ndarray:
+def seismic_moment(
+    area_m2: ArrayLike, slip_m: ArrayLike, *, shear_modulus_pa: float = SHEAR_MODULUS_PA
+) -> np.ndarray:
     """Seismic moment M0 = mu A D, N m.
 
     Parameters
@@ -471,8 +488,12 @@ def magnitude_table(
     inputs = {
         "srl": length,
         "ra": np.atleast_1d(np.asarray(area_km2, dtype=float)),
-        "md": np.full(n, np.nan) if max_disp_m is None else np.broadcast_to(np.asarray(max_disp_m, dtype=float), (n,)),
-        "ad": np.full(n, np.nan) if avg_disp_m is None else np.broadcast_to(np.asarray(avg_disp_m, dtype=float), (n,)),
+        "md": np.full(n, np.nan)
+        if max_disp_m is None
+        else np.broadcast_to(np.asarray(max_disp_m, dtype=float), (n,)),
+        "ad": np.full(n, np.nan)
+        if avg_disp_m is None
+        else np.broadcast_to(np.asarray(avg_disp_m, dtype=float), (n,)),
     }
     cols: dict[str, np.ndarray] = {}
     warns: list[str] = []
@@ -487,6 +508,51 @@ def magnitude_table(
     return pd.DataFrame(cols), warns
 
 
+#: Relations combined by the ``area_mean`` rule of :func:`preferred_magnitude`.
+AREA_RULE_KEYS: tuple[str, ...] = ("ra_wc94", "hb02")
+
+
+def area_rule_weights(table: pd.DataFrame) -> dict[str, np.ndarray]:
+    """Weights of the area relations in the ``area_mean`` preferred magnitude.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        Output of :func:`magnitude_table` with the ``mag_<key>`` and
+        ``mag_<key>_sigma`` columns of :data:`AREA_RULE_KEYS`.
+
+    Returns
+    -------
+    dict of str to numpy.ndarray
+        Normalised weights per relation key (they sum to 1 on every row; NaN
+        where no relation gives a magnitude).
+
+    Notes
+    -----
+    Inverse-variance weights, w_i = 1 / sigma_i**2, from the sigma columns
+    (comparable single-event scatters, see :data:`RELATIONS`). The upper
+    branch of Hanks & Bakun (2002), A > 537 km2, gets weight 0: its 4/3 slope
+    was built on large continental strike-slip ruptures (from memory), not on
+    normal faults, whose Wells & Coppersmith (1994) RA-normal relation covers
+    areas up to about 900 km2. Because Hanks & Bakun's magnitude grows with
+    the area, A > 537 km2 is read from the table as M_hb02 > 3.98 + log10(537).
+    """
+    hb = get_relation("hb02")
+    m_break = hb.a + hb.b * np.log10(hb.break_x)
+    raw: dict[str, np.ndarray] = {}
+    for key in AREA_RULE_KEYS:
+        m = table[f"mag_{key}"].to_numpy(float)
+        s = table[f"mag_{key}_sigma"].to_numpy(float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            w = np.where(np.isfinite(m) & np.isfinite(s) & (s > 0), 1.0 / s**2, 0.0)
+        if key == "hb02":
+            w = np.where(m > m_break, 0.0, w)
+        raw[key] = w
+    total = sum(raw.values())
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return {k: np.where(total > 0, w / total, np.nan) for k, w in raw.items()}
+
+
 def preferred_magnitude(table: pd.DataFrame, *, rule: str = "area_mean") -> tuple[np.ndarray, np.ndarray]:
     """Return the preferred magnitude and its sigma from a :func:`magnitude_table`.
 
@@ -495,29 +561,42 @@ def preferred_magnitude(table: pd.DataFrame, *, rule: str = "area_mean") -> tupl
     table : pandas.DataFrame
         Output of :func:`magnitude_table` (needs the columns of the rule).
     rule : str, optional
-        ``"area_mean"`` (default): the equal-weight mean of the two
-        rupture-area relations for normal faults, Wells & Coppersmith (1994)
-        RA-normal and Hanks & Bakun (2002); sigma = the Wells & Coppersmith
-        RA-normal residual sigma (0.25), the scatter of the data set both
-        were fitted to. Any relation key (e.g. ``"srl_wc94"``): that
-        relation's magnitude and sigma.
+        ``"area_mean"`` (default): the weighted mean of the two rupture-area
+        relations, Wells & Coppersmith (1994) RA-normal and Hanks & Bakun
+        (2002), with the weights of :func:`area_rule_weights` (inverse
+        variance; Hanks & Bakun's strike-slip upper branch, A > 537 km2,
+        weight 0); sigma = the same weighted mean of the two sigmas. Any
+        relation key (e.g. ``"srl_wc94"``): that relation's magnitude and
+        sigma.
 
     Returns
     -------
     mag, sigma : numpy.ndarray
+        Moment magnitude and its one-sigma single-event scatter.
 
     Notes
     -----
     Area relations are preferred for normal faults because they carry the
     down-dip width (dip and seismogenic thickness) and scatter least
     (sigma 0.24-0.25 against 0.34 for length; Wells & Coppersmith 1994).
-    The two area relations are not independent, so their mean is not given
-    a smaller sigma.
+    The two area relations were fitted to largely the same earthquakes, so
+    their errors are treated as fully correlated: the sigma of the weighted
+    mean is the weighted mean of the sigmas (not the smaller
+    1 / sqrt(sum 1/sigma**2) of independent estimates).
     """
     if rule == "area_mean":
-        m = 0.5 * (table["mag_ra_wc94"].to_numpy(float) + table["mag_hb02"].to_numpy(float))
-        s = table["mag_ra_wc94_sigma"].to_numpy(float)
+        w = area_rule_weights(table)
+        terms = [
+            (w[k], table[f"mag_{k}"].to_numpy(float), table[f"mag_{k}_sigma"].to_numpy(float))
+            for k in AREA_RULE_KEYS
+        ]
+        m = sum(np.where(wk > 0, wk * mk, 0.0) for wk, mk, _ in terms)
+        s = sum(np.where(wk > 0, wk * sk, 0.0) for wk, _, sk in terms)
+        none = np.isnan(w[AREA_RULE_KEYS[0]])
+        m, s = np.where(none, np.nan, m), np.where(none, np.nan, s)
         return m, s
     if rule not in MAGNITUDE_KEYS:
-        raise ParameterError(f"unknown preferred-magnitude rule {rule!r}; use one of {', '.join(PREFERRED_RULES)}")
+        raise ParameterError(
+            f"unknown preferred-magnitude rule {rule!r}; use one of {', '.join(PREFERRED_RULES)}"
+        )
     return table[f"mag_{rule}"].to_numpy(float), table[f"mag_{rule}_sigma"].to_numpy(float)
