@@ -95,6 +95,18 @@ def _fmt_pct(x: float) -> str:
 # ---------------------------------------------------------------------------
 # checks
 # ---------------------------------------------------------------------------
+def check_error_bars(label, est, true, err):
+    """Share of true max throws within 1 and 2 reported sigma (issue target: 55-85 % and >= 90 %)."""
+    z = np.abs((np.asarray(est, float) - np.asarray(true, float)) / np.asarray(err, float))
+    z = z[np.isfinite(z)]
+    if not z.size:
+        row(label, "throw: true max within 1 / 2 sigma", "no error bars", "55-85 % / >= 90 %", False)
+        return
+    in1, in2 = float(np.mean(z <= 1.0)), float(np.mean(z <= 2.0))
+    row(label, f"throw: true max within 1 / 2 sigma ({z.size} faults)", f"{100 * in1:.0f} % / {100 * in2:.0f} %",
+        "55-85 % / >= 90 %", 0.55 <= in1 <= 0.85 and in2 >= 0.90)
+
+
 def check_throw(label, scene, layers):
     m = throw_errors(scene, layers["faults"])
     if not len(m):
@@ -106,6 +118,7 @@ def check_throw(label, scene, layers):
         "<= 5 %", med <= 0.05)
     row(label, "throw: median signed rel err / worst", f"{_fmt_pct(float(np.median(m['rel_err'])))} / "
         f"{worst['name']} {_fmt_pct(float(worst['rel_err']))}", "(info)", None)
+    check_error_bars(label, m["max_throw_m"], m["max_throw_m_true"], m["max_throw_err_m"])
     st = layers["throw_stations"]["status"].value_counts()
     row(label, "throw: station status", ", ".join(f"{k} {v}" for k, v in st.items()), "(info)", None)
 
@@ -268,6 +281,7 @@ def demo(folder: Path, small: bool):
     med = float(np.median(np.abs(rel)))
     row(label, f"throw: median |rel err| ({int(ok.sum())} faults)", f"{100 * med:.1f} % "
         f"(signed median {_fmt_pct(float(np.median(rel)))})", "<= 5 %", med <= 0.05)
+    check_error_bars(label, m.loc[ok, "max_throw_m"], m.loc[ok, "max_throw_m_true"], m.loc[ok, "max_throw_err_m"])
     tt = pd.DataFrame({"transect_id": [1, 2, 3],
                        "n_crossings_true": [int(truth[f"transect_{i}_n_crossings"].iloc[0]) for i in (1, 2, 3)],
                        "sum_heave_along_m_true": [float(truth[f"transect_{i}_sum_heave_along_m"].iloc[0])

@@ -18,7 +18,18 @@ import shapely
 
 from faultmap.throw.smoothing import _smooth_profiles
 
-__all__ = ["summarise_faults"]
+__all__ = ["summarise_faults", "MAX_THROW_STATION_SHARE", "MAX_THROW_MODEL_REL_ERR"]
+
+#: Share of a fault's typical (median) station throw error that smoothing cannot average away:
+#: neighbouring stations share relief, far-field surfaces and DEM errors, so their errors are
+#: correlated along strike. Calibrated on synthetic scenes (docs/methods/throw.md, "Error of the
+#: maximum throw").
+MAX_THROW_STATION_SHARE = 0.5
+
+#: Relative model error of a maximum throw: what a straight-line far-field surface cannot
+#: represent (flexure and tapering neighbours within the profile, scarp degradation).
+#: Calibrated on synthetic scenes with several pixel sizes, noise, roughness and profile shapes.
+MAX_THROW_MODEL_REL_ERR = 0.03
 
 
 def _vertex_between_stations(i, g, d, T, se, usable, coef, key):
@@ -75,6 +86,21 @@ def _sorted_by_group(group, d) -> bool:
     return bool(np.all(dg >= 0) and np.all((dg > 0) | (np.diff(d) >= 0)))
 
 
+def _group_median(group, v, n_groups):
+    """Median of ``v`` per group index (0..n_groups-1), NaN for empty groups; one sort."""
+    out = np.full(n_groups, np.nan)
+    if group.size == 0:
+        return out
+    o = np.lexsort((v, group))
+    g, vv = group[o], v[o]
+    starts = np.flatnonzero(np.r_[True, g[1:] != g[:-1]])
+    counts = np.diff(np.r_[starts, g.size])
+    lo = starts + (counts - 1) // 2
+    hi = starts + counts // 2
+    out[g[starts]] = 0.5 * (vv[lo] + vv[hi])
+    return out
+
+
 def _grouped_trapz(group, d, v, L, n_groups):
     """Integral over [0, L_g] of the piecewise-linear curve through (d, v), 0 at both ends."""
     g = np.concatenate([np.arange(n_groups), group, np.arange(n_groups)])
@@ -129,7 +155,11 @@ def summarise_faults(
     (running median of 5, 3 robust deviations; Hampel 1974) has set aside
     isolated outliers, so one noisy station cannot make the maximum. Its
     error is the larger of the propagated station errors and the local
-    scatter about the smooth curve. Mean throw and the heave integral
+    scatter about the smooth curve (``max_throw_fit_err_m``); the reported
+    ``max_throw_err_m`` adds in quadrature half the fault's median station
+    error (station errors are correlated along strike, so smoothing cannot
+    average them away) and 3 % of the maximum (model error), a rule
+    calibrated on synthetic scenes (``docs/methods/throw.md``). Mean throw and the heave integral
     integrate the piecewise-linear profile through the usable stations,
     tapering to zero at both tips (displacement vanishes at a fault tip;
     Walsh & Watterson 1988, from memory), so faults cut by the DEM edge are
@@ -189,6 +219,15 @@ def summarise_faults(
     val, dpos = _vertex_between_stations(bi, g, d, T, se, ok & ~outl, coef, key)
     mx[g[bi]] = val
     mx_err[g[bi]] = se_s[bi]
+    mx_fit_err = mx_err.copy()
+    # the calibrated error of the maximum: the smoothed profile's own error, the share of the
+    # station errors correlated along strike, and the relative model error, in quadrature
+    st_err = _group_median(g[ok & ~outl], se[ok & ~outl], nF)
+    mx_err = np.sqrt(
+        mx_fit_err**2
+        + (MAX_THROW_STATION_SHARE * np.nan_to_num(st_err)) ** 2
+        + (MAX_THROW_MODEL_REL_ERR * mx) ** 2
+    )
     mx_d[g[bi]] = dpos
     n_ok = np.bincount(g[ok], minlength=nF)
     n_all = np.bincount(g, minlength=nF)
@@ -216,6 +255,7 @@ def summarise_faults(
         _warnings.simplefilter("ignore", RuntimeWarning)
         f["max_throw_m"] = mx
         f["max_throw_err_m"] = mx_err
+        f["max_throw_fit_err_m"] = mx_fit_err
         f["max_throw_dist_m"] = mx_d
         f["mean_throw_m"] = mean_t
         f["heave_integral_m2"] = heave_int
