@@ -11,8 +11,6 @@ of the heat equation).
 
 from __future__ import annotations
 
-import math
-
 import matplotlib
 
 matplotlib.use("Agg")
@@ -53,7 +51,9 @@ def test_thermal_subsidence_one_term_limit():
     gap = float(thermal_subsidence_m(2.0, np.inf)) - exact_limit
     assert gap == pytest.approx(62.0, abs=2.0)
     for t in (k["tau_myr"], 2 * k["tau_myr"]):
-        assert thermal_subsidence_m(2.0, t) - _crank_nicolson_subsidence(2.0, t) == pytest.approx(gap, abs=5.0)
+        assert thermal_subsidence_m(2.0, t) - _crank_nicolson_subsidence(2.0, t) == pytest.approx(
+            gap, abs=5.0
+        )
     # no stretching, no subsidence
     assert thermal_subsidence_m(1.0, np.inf) == pytest.approx(0.0, abs=1e-9)
 
@@ -112,7 +112,9 @@ def test_initial_subsidence_against_numerical_isostasy():
         m0, m1 = after_mass(0.0), after_mass(1000.0)
         s_num = (before - m0) / ((m1 - m0) / 1000.0)
         assert initial_subsidence_m(beta, crust_thickness_m=tc) == pytest.approx(s_num, rel=2e-3)
-    assert initial_subsidence_m(2.0, crust_thickness_m=35e3, crust_density_kg_m3=2800.0) == pytest.approx(2137.0, abs=1.0)
+    assert initial_subsidence_m(2.0, crust_thickness_m=35e3, crust_density_kg_m3=2800.0) == pytest.approx(
+        2137.0, abs=1.0
+    )
 
 
 def _isostatic_subsidence(beta, tc):
@@ -155,7 +157,15 @@ def test_full_series_against_finite_differences_and_its_limit():
 
 def test_curve_table_and_validation():
     tab = subsidence_curve(1.8, time_myr=[0.0, 10.0, 100.0, 200.0])
-    assert list(tab.columns) == ["time_myr", "beta", "crust_thickness_m", "initial_m", "thermal_m", "total_m", "loading"]
+    assert list(tab.columns) == [
+        "time_myr",
+        "beta",
+        "crust_thickness_m",
+        "initial_m",
+        "thermal_m",
+        "total_m",
+        "loading",
+    ]
     assert tab["thermal_m"].iloc[0] == 0.0
     assert np.all(np.diff(tab["total_m"]) > 0)
     assert np.allclose(tab["total_m"], tab["initial_m"] + tab["thermal_m"])
