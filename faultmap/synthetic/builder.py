@@ -108,6 +108,7 @@ def build_dem(
     hanging_wall_smoothing: float = 0.0,
     prefault_fn: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None,
     crs: Any = None,
+    kappa_t_m2: float = 0.0,
 ) -> tuple[np.ndarray, Affine, SceneTruth]:
     """Build a DEM by displacing a pre-faulting surface along known normal faults.
 
@@ -155,6 +156,11 @@ def build_dem(
         the pre-fault surface (e.g. to place marker features).
     crs : optional
         CRS of the truth GeoDataFrames (default: that of ``faults``).
+    kappa_t_m2 : float
+        Diffusivity times age (m^2) of every scarp: > 0 replaces the
+        raised-sine ramp by a diffusion-degraded one
+        (:func:`faultmap.synthetic.degradation.diffused_ramp`); a fault's own
+        ``kappa_t_m2`` field overrides it (0 = the ramp of ``scarp_width_m``).
 
     Returns
     -------
@@ -227,7 +233,7 @@ def build_dem(
     smoothing = float(hanging_wall_smoothing)
     if not np.isfinite(smoothing) or smoothing < 0:
         raise ParameterError(f"hanging_wall_smoothing must be >= 0, got {hanging_wall_smoothing}")
-    flist = _prepare_faults(faults, hanging_wall_extent_m=hanging_wall_extent_m)
+    flist = _prepare_faults(faults, hanging_wall_extent_m=hanging_wall_extent_m, kappa_t_m2=kappa_t_m2)
     transform = Affine(px, 0.0, x0, 0.0, -px, y0)
     if smoothing > 0:
         diag = math.hypot(nrows, ncols) * px
@@ -304,6 +310,7 @@ def build_dem(
             "hanging_wall_extent_m": hanging_wall_extent_m,
             "hanging_wall_smoothing": smoothing,
             "custom_prefault": prefault_fn is not None,
+            "kappa_t_m2": float(kappa_t_m2),
         },
     )
     return dem, transform, truth

@@ -23,6 +23,7 @@ from shapely.geometry import LineString, MultiLineString
 from shapely.geometry.base import BaseGeometry
 
 from faultmap.errors import GeometryError, InputError, ParameterError
+from faultmap.synthetic.degradation import diffused_ramp, ramp_reach_m
 from faultmap.synthetic.grid import _positive
 from faultmap.synthetic.profile_shapes import _check_profile_params, throw_profile
 
@@ -39,6 +40,7 @@ class _Fault:
     peak_pos: float
     plateau_frac: float
     hw_extent_m: float  # inf = rigid hanging wall to the grid edge
+    kappa_t_m2: float = 0.0  # > 0: diffusion-degraded scarp (erf ramp) instead of the raised sine
     # derived (chord frame)
     x0: float = 0.0
     y0: float = 0.0
@@ -119,7 +121,7 @@ def _get_float(rec: Mapping[str, Any], key: str, default: float | None, label: s
         raise InputError(f"fault {label}: {key!r} must be a number, got {value!r}") from None
 
 
-def _prepare_faults(faults: Any, *, hanging_wall_extent_m: float | None) -> list[_Fault]:
+def _prepare_faults(faults: Any, *, hanging_wall_extent_m: float | None, kappa_t_m2: float = 0.0) -> list[_Fault]:
     out: list[_Fault] = []
     default_extent = math.inf if hanging_wall_extent_m is None else _positive(
         hanging_wall_extent_m, "hanging_wall_extent_m"
@@ -149,7 +151,10 @@ def _prepare_faults(faults: Any, *, hanging_wall_extent_m: float | None) -> list
             ext_m = _positive(ext, f"fault {label}: hw_extent_m")
         name = rec.get("name", "")
         name = "" if name is None or (isinstance(name, float) and math.isnan(name)) else str(name)
-        f = _Fault(fid, name, line, dip, dip_dir, tmax, shape, peak, plat, ext_m)
+        kt = _get_float(rec, "kappa_t_m2", float(kappa_t_m2), label)
+        if not np.isfinite(kt) or kt < 0:
+            raise ParameterError(f"fault {label}: kappa_t_m2 must be >= 0 (m^2), got {kt}")
+        f = _Fault(fid, name, line, dip, dip_dir, tmax, shape, peak, plat, ext_m, kt)
         _chord_frame(f, label)
         out.append(f)
     ids = [f.fault_id for f in out]
@@ -217,7 +222,7 @@ def _fault_window(f: _Fault, x0: float, y0: float, px: float, shape: tuple[int, 
                   scarp_width_m: float) -> tuple[slice, slice] | None:
     """Row/column window that holds every pixel this fault displaces."""
     nrows, ncols = shape
-    half = max(scarp_width_m, 0.0) / 2.0 + px
+    half = max(scarp_width_m / 2.0, ramp_reach_m(f.kappa_t_m2), 0.0) + px
     bmin = float(f.b_v.min()) - half
     if np.isfinite(f.hw_extent_m):
         bmax = float(f.b_v.max()) + half + 2.0 * f.hw_extent_m
@@ -278,6 +283,7 @@ def _displacement(f: _Fault, x: np.ndarray, y: np.ndarray, scarp_width_m: float
         t = ndimage.map_coordinates(f.sm_table, [c.ravel() for c in coords], order=1,
                                     mode="constant", cval=0.0).reshape(a.shape)
         t = np.where(sigma > 0, t, np.where((a < 0) | (a > f.chord_m), 0.0, t))
-    drop = t * _scarp_ramp(d, scarp_width_m) * _hw_taper(d, f.hw_extent_m)
+    ramp = diffused_ramp(d, f.kappa_t_m2) if f.kappa_t_m2 > 0 else _scarp_ramp(d, scarp_width_m)
+    drop = t * ramp * _hw_taper(d, f.hw_extent_m)
     return drop, drop * f.cot_dip
 

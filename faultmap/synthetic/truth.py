@@ -37,7 +37,8 @@ class SceneTruth:
         ``max_heave_m`` (``max_throw_m / tan(dip)``), ``max_throw_dist_m``
         (distance of the maximum from the trace's start vertex),
         ``profile_shape``, ``peak_pos``, ``plateau_frac``, ``hw_extent_m``
-        (inf for a rigid hanging wall).
+        (inf for a rigid hanging wall), ``kappa_t_m2`` (diffusivity times
+        age of a diffusion-degraded scarp, m^2; 0 = the raised-sine ramp).
     transform : rasterio.Affine
         Grid transform (pixel-centre convention of :mod:`faultmap.synthetic.builder`).
     shape : (nrows, ncols)
@@ -113,12 +114,12 @@ def _truth_table(flist: list[_Fault], crs: Any) -> gpd.GeoDataFrame:
             "max_heave_m": f.max_throw_m * f.cot_dip,
             "max_throw_dist_m": s_max * f.length_m,
             "profile_shape": f.shape, "peak_pos": f.peak_pos, "plateau_frac": f.plateau_frac,
-            "hw_extent_m": f.hw_extent_m, "geometry": f.line,
+            "hw_extent_m": f.hw_extent_m, "kappa_t_m2": f.kappa_t_m2, "geometry": f.line,
         })
     if not rows:
         cols = ["fault_id", "name", "length_m", "max_throw_m", "dip_deg", "dip_dir_deg",
                 "strike_deg", "max_heave_m", "max_throw_dist_m", "profile_shape", "peak_pos",
-                "plateau_frac", "hw_extent_m"]
+                "plateau_frac", "hw_extent_m", "kappa_t_m2"]
         return gpd.GeoDataFrame({c: [] for c in cols}, geometry=[], crs=crs)
     return gpd.GeoDataFrame(rows, geometry="geometry", crs=crs)
 

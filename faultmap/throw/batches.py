@@ -20,8 +20,10 @@ import numpy as np
 import pandas as pd
 import shapely
 
+from faultmap.scarps.profile_degradation import RAW_COLUMNS as _KT_COLUMNS
+from faultmap.scarps.profile_degradation import DegradationCollector
 from faultmap.throw.params import ThrowParams
-from faultmap.throw.profiles import RAW_COLUMNS as _RAW_COLUMNS
+from faultmap.throw.profiles import RAW_COLUMNS as _PROFILE_COLUMNS
 from faultmap.throw.profiles import measure_profiles
 from faultmap.throw.stations import (
     StationSet,
@@ -30,7 +32,11 @@ from faultmap.throw.stations import (
     side_signs,
 )
 
-__all__ = ["ThrowBatch", "plan_batches", "run_batch", "measure_batch", "min_batches_for"]
+__all__ = ["ThrowBatch", "plan_batches", "run_batch", "measure_batch", "min_batches_for", "RAW_COLUMNS"]
+
+#: Raw station fields of a batch: the profile fits and the scarp degradation (kappa t).
+RAW_COLUMNS = _PROFILE_COLUMNS + _KT_COLUMNS
+_RAW_COLUMNS = RAW_COLUMNS
 
 _F32 = np.float32
 #: A window of up to this many pixels is read at once rather than in pieces (a read of this size
@@ -250,13 +256,24 @@ def _measure_on_window(dem, st: StationSet, H, lim_m, lim_p, params, box, window
             return res
         window = _read_for(dem, st, H, _unbounded(params))
     arr, wt, _ = window
+    kt = _degradation_collector(len(st), params)
     if arr.size == 0:
         r = measure_profiles(
             np.full((2, 2), np.nan, dtype=_F32), dem.transform, st, H, lim_m, lim_p, params, raster_box=box
         )
         r["geo_status"][:] = "outside"
-        return r
-    return measure_profiles(arr, wt, st, H, lim_m, lim_p, params, raster_box=box)
+        return {**r, **{k: np.full(len(st), np.nan) for k in _KT_COLUMNS}}
+    r = measure_profiles(arr, wt, st, H, lim_m, lim_p, params, raster_box=box, on_chunk=kt)
+    return {**r, **(kt.result() if kt is not None else {k: np.full(len(st), np.nan) for k in _KT_COLUMNS})}
+
+
+def _degradation_collector(n, params):
+    """The scarp degradation fit on the same profiles (faultmap.scarps), or None when switched off."""
+    if not getattr(params, "degradation", False):
+        return None
+    return DegradationCollector(
+        n, step_m=params.sample_step_m, pixel_size_m=params.pixel_size_m, n_events=params.n_events
+    )
 
 
 def _unbounded(params):

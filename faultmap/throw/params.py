@@ -49,6 +49,8 @@ class ThrowParams:
     min_caskey_factor: float
     min_inlier_fraction: float
     min_stations: int = 24
+    degradation: bool = True
+    n_events: int = 1
 
     @property
     def adaptive(self) -> bool:
@@ -115,6 +117,8 @@ def resolve_params(
     smooth_stations: float | None = None,
     min_stations_per_fault: int = 24,
     sample_step_m: float | None = None,
+    degradation: bool = True,
+    n_events: int = 1,
 ) -> ThrowParams:
     """Check the user's parameters and adapt the unset ones to the DEM.
 
@@ -169,6 +173,11 @@ def resolve_params(
         peaked profile is then sampled closely enough.
     sample_step_m : float, optional
         Sample spacing along profiles; default one pixel.
+    degradation : bool
+        Also fit the diffusion form of a degraded scarp to every station's
+        profile (kappa t; :mod:`faultmap.scarps`).
+    n_events : int
+        Events each scarp grew in, for that fit (1 = a single event).
 
     Returns
     -------
@@ -285,5 +294,7 @@ def resolve_params(
         min_caskey_factor=0.25,
         min_stations=min_st,
         min_inlier_fraction=0.5,
+        degradation=bool(degradation),
+        n_events=_check_number("n_events", n_events, lo=1, hi=20, integer=True),
     )
 

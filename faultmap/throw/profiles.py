@@ -271,6 +271,7 @@ def measure_profiles(
     *,
     raster_box=None,
     chunk_elements: int | None = None,
+    on_chunk=None,
 ) -> dict:
     """Sample and fit the profiles of many stations on one DEM window.
 
@@ -295,6 +296,10 @@ def measure_profiles(
         stations whose profile lengths differ by under 25 % share a matrix.
         Default: a quarter of ``params.memory_budget_mb`` at
         ``BYTES_PER_SAMPLE``, at most ``MAX_CHUNK_SAMPLES``.
+    on_chunk : callable, optional
+        ``on_chunk(sel, Z, fits)`` for each sample matrix (station indices,
+        samples, far-field fits), e.g. the scarp degradation fit
+        (:class:`faultmap.scarps.profile_degradation.DegradationCollector`).
 
     Returns
     -------
@@ -376,6 +381,8 @@ def measure_profiles(
             row_samples=None if int(kr.min()) == K else np.concatenate([kr, kr]),
             **fitkw,
         )
+        if on_chunk is not None:
+            on_chunk(sel, Z, res)
         del Z
         _station_results(out, sel, res, stations, H, K_all, trunc_m, trunc_p, raster_box, params)
     return out

@@ -59,11 +59,12 @@ import shapely
 from faultmap.engine import old_objects_frozen
 from faultmap.errors import CRSError, InputError, ParameterError
 from faultmap.numerics import jit
+from faultmap.scarps.fault_degradation import STATION_KT_COLUMNS, station_kappa_t, summarise_degradation
 from faultmap.throw.batches import _raw_frame, _side_signs_for, plan_batches, run_batch
 from faultmap.throw.fault_summaries import summarise_faults
 from faultmap.throw.linkage import linkage_zones
 from faultmap.throw.params import ThrowParams, resolve_params
-from faultmap.throw.profiles import RAW_COLUMNS as _RAW_COLUMNS
+from faultmap.throw.batches import RAW_COLUMNS as _RAW_COLUMNS  # profile fits and kappa t
 from faultmap.throw.stations import StationSet, place_stations
 from faultmap.traces.conditioning import _ids
 
@@ -212,7 +213,7 @@ def finalise_stations(raw: pd.DataFrame, faults: pd.DataFrame, hw_sign) -> pd.Da
         np.degrees(np.arctan2(s * df["nx"].to_numpy(float), s * df["ny"].to_numpy(float))) % 360.0
     )
     df["status"] = status
-    return df
+    return station_kappa_t(df)  # kappa t fields of the scarp degradation fit (faultmap.scarps)
 
 
 # ---------------------------------------------------------------------------
@@ -269,7 +270,7 @@ STATION_COLUMNS = (
     "n_hw",
     "profile_azimuth_deg",
     "profile_half_length_m",
-)
+) + STATION_KT_COLUMNS  # scarp degradation (faultmap.scarps)
 
 
 def _check_faults(faults) -> gpd.GeoDataFrame:
@@ -514,6 +515,7 @@ def measure_throw(
             mapper=lambda fn, items: mapper(fn, items, None),
             chunk_stations=max(1024, -(-len(st) // n_chunks)),
         )
+    f = summarise_degradation(f, st)  # per-fault kappa t (faultmap.scarps)
     if "censored" not in f.columns:
         f["censored"] = False
     f["censored"] = f["censored"].astype(bool)
