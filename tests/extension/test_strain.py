@@ -38,8 +38,17 @@ def make_scene(lines, *, throw_fn, dip=60.0, dip_dir=None, n_st=41, dip_source="
         t = throw_fn(k, d, ln.length)
         h = t / np.tan(np.radians(dip[k]))
         integ.append(float(np.sum(0.5 * (h[1:] + h[:-1]) * np.diff(d))))
-        rows += [dict(fault_id=k + 1, dist_m=dd, throw_m=tt, throw_err_m=0.0, status="ok", geometry=ln.interpolate(dd))
-                 for dd, tt in zip(d, t, strict=True)]
+        rows += [
+            dict(
+                fault_id=k + 1,
+                dist_m=dd,
+                throw_m=tt,
+                throw_err_m=0.0,
+                status="ok",
+                geometry=ln.interpolate(dd),
+            )
+            for dd, tt in zip(d, t, strict=True)
+        ]
     faults = gpd.GeoDataFrame(
         {
             "fault_id": np.arange(1, n + 1),
@@ -84,8 +93,13 @@ def oblique_scene():
         p1 = (x0 + bend * np.cos(a), y0 - bend * np.sin(a))
         lines.append(shapely.LineString([p0, p1, p2]))
         dds.append((strike + 90.0 + (180.0 if k % 3 == 0 else 0.0)) % 360.0)
-    return make_scene(lines, throw_fn=lambda k, d, L: (40.0 + 7 * k) * np.sin(np.pi * d / L),
-                      dip=[50, 55, 60, 65, 70, 60], dip_dir=dds, n_st=61)
+    return make_scene(
+        lines,
+        throw_fn=lambda k, d, L: (40.0 + 7 * k) * np.sin(np.pi * d / L),
+        dip=[50, 55, 60, 65, 70, 60],
+        dip_dir=dds,
+        n_st=61,
+    )
 
 
 # ------------------------------------------------------------ check values (docs/methods/extension.md)
@@ -95,14 +109,19 @@ def test_kostrov_worked_example():
     # [[7.217e-4, -7.217e-4], [-7.217e-4, 7.217e-4]].
     a = np.radians(45.0)  # strike 45 -> dip direction 135
     ln = shapely.LineString([(-5000 * np.sin(a), -5000 * np.cos(a)), (5000 * np.sin(a), 5000 * np.cos(a))])
-    faults, stations = make_scene([ln], throw_fn=lambda k, d, L: np.full_like(d, 100.0), dip=60.0, dip_dir=[135.0])
-    poly = gpd.GeoDataFrame({"polygon_id": [1]}, geometry=[shapely.box(-10000, -10000, 10000, 10000)], crs=CRS)
+    faults, stations = make_scene(
+        [ln], throw_fn=lambda k, d, L: np.full_like(d, 100.0), dip=60.0, dip_dir=[135.0]
+    )
+    poly = gpd.GeoDataFrame(
+        {"polygon_id": [1]}, geometry=[shapely.box(-10000, -10000, 10000, 10000)], crs=CRS
+    )
     cells, whole = kostrov_polygons(faults, stations, poly)
     row = cells.iloc[0]
     assert row["area_m2"] == pytest.approx(4e8)
     assert row["e1"] == pytest.approx(1.4434e-3, abs=5e-8)
     assert np.array([[row["exx"], row["exy"]], [row["exy"], row["eyy"]]]) == pytest.approx(
-        np.array([[7.217e-4, -7.217e-4], [-7.217e-4, 7.217e-4]]), abs=5e-8)
+        np.array([[7.217e-4, -7.217e-4], [-7.217e-4, 7.217e-4]]), abs=5e-8
+    )
     assert row["e2"] == pytest.approx(0.0, abs=1e-12)
     assert row["e1_azimuth_deg"] == pytest.approx(135.0, abs=1e-9)
     assert row["ezz"] == pytest.approx(-1.4434e-3, abs=5e-8)  # volume conservation
@@ -131,15 +150,20 @@ def test_parallel_faults_both_routes_give_h_over_S():
     S, h, dip, n, Lf = 2000.0, 50.0, 60.0, 5, 10000.0
     T = h * np.tan(np.radians(dip))
     lines = [shapely.LineString([(S / 2 + k * S, 0.0), (S / 2 + k * S, Lf)]) for k in range(n)]
-    faults, stations = make_scene(lines, throw_fn=lambda k, d, L: np.full_like(d, T), dip=dip, dip_dir=np.full(n, 90.0))
+    faults, stations = make_scene(
+        lines, throw_fn=lambda k, d, L: np.full_like(d, T), dip=dip, dip_dir=np.full(n, 90.0)
+    )
     cells, whole = kostrov_grid(faults, stations, cell_size_m=S)
     assert len(cells) == n * int(Lf / S)
     assert cells["exx"].to_numpy() == pytest.approx(np.full(len(cells), h / S), rel=1e-12)
     assert cells["eyy"].to_numpy() == pytest.approx(np.zeros(len(cells)), abs=1e-15)
     assert cells["e1_azimuth_deg"].to_numpy() == pytest.approx(np.full(len(cells), 90.0))
     assert whole["exx"] == pytest.approx(h / S, rel=1e-12)
-    tr = gpd.GeoDataFrame({"transect_id": [1, 2]}, crs=CRS, geometry=[
-        shapely.LineString([(-3000, y), (S * n + 3000, y)]) for y in (2500.0, 7000.0)])
+    tr = gpd.GeoDataFrame(
+        {"transect_id": [1, 2]},
+        crs=CRS,
+        geometry=[shapely.LineString([(-3000, y), (S * n + 3000, y)]) for y in (2500.0, 7000.0)],
+    )
     t, _ = measure_transects(faults, stations, tr, n_draws=50)
     assert t["extension_present"].to_numpy() == pytest.approx(np.full(2, h / S), rel=1e-12)
     assert t["extension_present"].to_numpy() == pytest.approx(np.full(2, whole["e1"]), rel=1e-12)
@@ -155,8 +179,12 @@ def test_area_weighted_cells_equal_fault_sum(cell):
     cells, whole = kostrov_grid(faults, stations, cell_size_m=cell)
     M = fault_moment_sum(faults)
     A = cells["area_m2"].to_numpy()
-    got = np.array([[np.sum(A * cells["exx"]), np.sum(A * cells["exy"])],
-                    [np.sum(A * cells["exy"]), np.sum(A * cells["eyy"])]])
+    got = np.array(
+        [
+            [np.sum(A * cells["exx"]), np.sum(A * cells["exy"])],
+            [np.sum(A * cells["exy"]), np.sum(A * cells["eyy"])],
+        ]
+    )
     assert got == pytest.approx(M, rel=1e-9, abs=1e-9 * np.abs(M).max())
     assert whole["moment_xx_m2"] == pytest.approx(M[0, 0], rel=1e-9)
     assert whole["n_faults"] == len(faults)
@@ -169,8 +197,9 @@ def test_area_weighted_cells_equal_fault_sum(cell):
 
 
 def test_rake_routes_agree():
-    # With a rake, both routes add the symmetric strike-slip part (Kostrov 1974 with the slip vector of
-    # Aki & Richards 1980, from memory); their agreement is exact.
+    # With a rake, the cell sums and the fault sum add the same symmetric strike-slip part; this checks
+    # that the grid clipping keeps it (the rake term itself is checked against an independent 3-D
+    # moment-tensor sum in test_kostrov_with_rake_against_a_3d_moment_tensor_sum).
     faults, stations = oblique_scene()
     cells, whole = kostrov_grid(faults, stations, cell_size_m=1500.0, rake_deg=-70.0)
     M = fault_moment_sum(faults, rake_deg=-70.0)
@@ -185,8 +214,11 @@ def test_rake_routes_agree():
 def test_rotation_rotates_the_tensor():
     # A rigid rotation R of the scene turns the tensor into R eps R^T (tensor transformation rule).
     faults, stations = oblique_scene()
-    poly = gpd.GeoDataFrame({"polygon_id": [1, 2]}, crs=CRS,
-                            geometry=[shapely.box(-20000, -20000, 30000, 20000), shapely.box(-20000, -20000, 5000, 20000)])
+    poly = gpd.GeoDataFrame(
+        {"polygon_id": [1, 2]},
+        crs=CRS,
+        geometry=[shapely.box(-20000, -20000, 30000, 20000), shapely.box(-20000, -20000, 5000, 20000)],
+    )
     c0, w0 = kostrov_polygons(faults, stations, poly, piece_length_m=100.0)
     for theta in (30.0, 123.0):
         f1, R = rotate_gdf(faults, theta)
@@ -208,7 +240,9 @@ def test_reversing_digitising_direction_changes_nothing():
     rev = faults.copy()
     rev.geometry = shapely.reverse(np.asarray(faults.geometry.values, dtype=object))
     st = stations.copy()
-    st["dist_m"] = st["fault_id"].map(dict(zip(faults["fault_id"], faults.geometry.length, strict=True))) - st["dist_m"]
+    st["dist_m"] = (
+        st["fault_id"].map(dict(zip(faults["fault_id"], faults.geometry.length, strict=True))) - st["dist_m"]
+    )
     c1, _ = kostrov_grid(rev, st, cell_size_m=1000.0)
     assert c1["cell_id"].tolist() == c0["cell_id"].tolist()
     for col in ("exx", "eyy", "exy", "e1", "n_faults"):
@@ -219,10 +253,15 @@ def test_unknown_dip_direction_uses_trace_normal():
     # m m is the same for m and -m (derived), so on straight traces the trace normal gives the same tensor
     # as the true dip direction, whichever way the fault dips.
     a = np.radians(20.0)
-    lines = [shapely.LineString([(x - 4000 * np.sin(a), -4000 * np.cos(a)), (x + 4000 * np.sin(a), 4000 * np.cos(a))])
-             for x in (0.0, 3000.0, 6000.0)]
-    faults, stations = make_scene(lines, throw_fn=lambda k, d, L: 30.0 * np.sin(np.pi * d / L),
-                                  dip_dir=[110.0, 290.0, 110.0])
+    lines = [
+        shapely.LineString(
+            [(x - 4000 * np.sin(a), -4000 * np.cos(a)), (x + 4000 * np.sin(a), 4000 * np.cos(a))]
+        )
+        for x in (0.0, 3000.0, 6000.0)
+    ]
+    faults, stations = make_scene(
+        lines, throw_fn=lambda k, d, L: 30.0 * np.sin(np.pi * d / L), dip_dir=[110.0, 290.0, 110.0]
+    )
     c0, _ = kostrov_grid(faults, stations, cell_size_m=2000.0)
     c1, _ = kostrov_grid(faults.assign(dip_dir_deg=np.nan), stations, cell_size_m=2000.0)
     for col in ("exx", "eyy", "exy"):
@@ -238,10 +277,15 @@ def test_keep_empty_and_n_faults():
     assert len(c_all) == (c_all["col"].max() + 1) * (c_all["row"].max() + 1)
     assert len(c_all) > len(c_occ)
     empty = c_all["n_faults"] == 0
-    assert (c_all.loc[empty, "exx"] == 0).all() and (c_all.loc[~empty, "cell_id"].tolist() == c_occ["cell_id"].tolist())
+    assert (c_all.loc[empty, "exx"] == 0).all() and (
+        c_all.loc[~empty, "cell_id"].tolist() == c_occ["cell_id"].tolist()
+    )
     # n_faults counts distinct faults intersecting each cell (shapely intersection as reference)
     g = np.asarray(c_occ.geometry.values, dtype=object)
-    ref = [int(np.sum(shapely.length(shapely.intersection(cell, np.asarray(faults.geometry.values))) > 1e-6)) for cell in g]
+    ref = [
+        int(np.sum(shapely.length(shapely.intersection(cell, np.asarray(faults.geometry.values))) > 1e-6))
+        for cell in g
+    ]
     assert c_occ["n_faults"].tolist() == ref
 
 
@@ -261,7 +305,9 @@ def test_pieces_clipped_to_cells_match_shapely_intersection():
     for poly in g:
         bx = shapely.bounds(poly)
         key = (int(round((bx[1] - y0) / cell)), int(round((bx[0] - x0) / cell)))
-        ref[key] = float(np.sum(shapely.length(shapely.intersection(poly, np.asarray(faults.geometry.values)))))
+        ref[key] = float(
+            np.sum(shapely.length(shapely.intersection(poly, np.asarray(faults.geometry.values))))
+        )
     for key, val in got.items():
         assert val == pytest.approx(ref[key], rel=1e-9, abs=1e-6)
 
@@ -307,8 +353,11 @@ def test_extension_figures():
     assert np.minimum(dif, 180.0 - dif) == pytest.approx(np.zeros(len(segs)), abs=1e-6)
     ratio = np.hypot(v[:, 0], v[:, 1]) / drawn["e1"].to_numpy()
     assert ratio == pytest.approx(np.full(len(ratio), ratio[0]), rel=1e-9)
-    tr = gpd.GeoDataFrame({"transect_id": [1, 2, 3]}, crs=CRS, geometry=[
-        shapely.LineString([(-8000, y), (22000, y)]) for y in (-3000.0, 0.0, 3000.0)])
+    tr = gpd.GeoDataFrame(
+        {"transect_id": [1, 2, 3]},
+        crs=CRS,
+        geometry=[shapely.LineString([(-8000, y), (22000, y)]) for y in (-3000.0, 0.0, 3000.0)],
+    )
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", FaultmapWarning)
         t, _ = measure_transects(faults, stations, tr, n_draws=100, detection_throw_m=5.0, exponent_c=1.0)
@@ -367,3 +416,53 @@ def test_whole_area_strain_does_not_depend_on_the_cell_size():
         assert ctx.records["strain.whole.area_m2"] == pytest.approx(hull, rel=1e-12)
         assert ctx.records["strain.whole_area_basis"].startswith("convex hull of the fault traces")
     assert seen == pytest.approx([M[0, 0] / hull] * 3, rel=1e-6)
+
+
+def _aki_richards_moment_ned(strike_deg, dip_deg, rake_deg, m0):
+    """Double-couple moment tensor in (North, East, Down) from strike, dip and rake, Aki & Richards
+    (1980, Box 4.4; from memory), and by the slip-normal route M0 (u n + n u) of the same book."""
+    f, d, r = np.radians([strike_deg, dip_deg, rake_deg])
+    sd, cd, s2d, c2d = np.sin(d), np.cos(d), np.sin(2 * d), np.cos(2 * d)
+    sr, cr, sf, cf, s2f, c2f = np.sin(r), np.cos(r), np.sin(f), np.cos(f), np.sin(2 * f), np.cos(2 * f)
+    mxx = -(sd * cr * s2f + s2d * sr * sf**2)
+    mxy = sd * cr * c2f + 0.5 * s2d * sr * s2f
+    mxz = -(cd * cr * cf + c2d * sr * sf)
+    myy = sd * cr * s2f - s2d * sr * cf**2
+    myz = -(cd * cr * sf - c2d * sr * cf)
+    mzz = s2d * sr
+    box = m0 * np.array([[mxx, mxy, mxz], [mxy, myy, myz], [mxz, myz, mzz]])
+    n = np.array([-sd * sf, sd * cf, -cd])  # normal into the hanging wall
+    u = np.array([cr * cf + cd * sr * sf, cr * sf - cd * sr * cf, -sr * sd])  # hanging-wall slip
+    assert box == pytest.approx(m0 * (np.outer(u, n) + np.outer(n, u)), abs=1e-12 * m0)
+    return box, u
+
+
+@pytest.mark.parametrize(
+    ("strike", "dip", "rake"),
+    [(30.0, 60.0, -90.0), (30.0, 60.0, -60.0), (200.0, 45.0, -120.0), (110.0, 70.0, -30.0)],
+)
+def test_kostrov_with_rake_against_a_3d_moment_tensor_sum(strike, dip, rake):
+    # Independent route: Kostrov (1974) strain eps = sum M / (2 mu V) from the full 3-D moment tensor
+    # of Aki & Richards (1980) for a fault of length L cutting a layer of thickness H (area L H / sin dip,
+    # slip s with vertical part s |sin rake| sin dip = T), V = map area x H; its horizontal block,
+    # turned from (N, E) to (E, N), must equal the map-view tensor of faultmap.
+    mu, H, L, T = 3e10, 10e3, 8000.0, 40.0
+    a = np.radians(strike)
+    ln = shapely.LineString(
+        [(-L / 2 * np.sin(a), -L / 2 * np.cos(a)), (L / 2 * np.sin(a), L / 2 * np.cos(a))]
+    )
+    faults, stations = make_scene(
+        [ln], throw_fn=lambda k, d, L_: np.full_like(d, T), dip=dip, dip_dir=[(strike + 90.0) % 360.0]
+    )
+    box = shapely.box(-10000, -10000, 10000, 10000)
+    poly = gpd.GeoDataFrame({"polygon_id": [1]}, geometry=[box], crs=CRS)
+    cells, _ = kostrov_polygons(faults, stations, poly, rake_deg=rake)
+    _, u = _aki_richards_moment_ned(strike, dip, rake, 1.0)
+    slip = T / abs(u[2])  # the vertical part of the slip is the throw
+    m_ned, _ = _aki_richards_moment_ned(strike, dip, rake, mu * (L * H / np.sin(np.radians(dip))) * slip)
+    eps_ned = m_ned / (2.0 * mu * box.area * H)
+    row = cells.iloc[0]
+    assert row["exx"] == pytest.approx(eps_ned[1, 1], rel=1e-9, abs=1e-15)  # E-E
+    assert row["eyy"] == pytest.approx(eps_ned[0, 0], rel=1e-9, abs=1e-15)  # N-N
+    assert row["exy"] == pytest.approx(eps_ned[0, 1], rel=1e-9, abs=1e-15)  # E-N
+    assert row["ezz"] == pytest.approx(eps_ned[2, 2], rel=1e-9, abs=1e-15)  # vertical, volume conserved
