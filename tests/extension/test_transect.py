@@ -48,8 +48,15 @@ def make_scene(lines, *, throw_fn, dip=60.0, dip_dir=None, dip_source="attribute
         t = throw_fn(k, d, ln.length)
         for dd, tt in zip(d, t, strict=True):
             rows.append(
-                dict(fault_id=k + 1, dist_m=dd, throw_m=tt, throw_err_m=err, status="ok",
-                     heave_m=tt / np.tan(np.radians(dip[k])), geometry=ln.interpolate(dd))
+                dict(
+                    fault_id=k + 1,
+                    dist_m=dd,
+                    throw_m=tt,
+                    throw_err_m=err,
+                    status="ok",
+                    heave_m=tt / np.tan(np.radians(dip[k])),
+                    geometry=ln.interpolate(dd),
+                )
             )
     stations = gpd.GeoDataFrame(rows, geometry="geometry", crs=crs)
     mx = stations.groupby("fault_id")["throw_m"].max().to_numpy()
@@ -91,16 +98,30 @@ def quiet(fn, *a, **k):
 
 
 # ------------------------------------------------------------ check values (docs/methods/extension.md)
+def _cross_section_heave(throw_m, dip_deg):
+    """Heave by a different route: a vertical cross-section built with shapely. The fault is a
+    line through the origin dipping east at dip_deg; the footwall cutoff of a horizon is the
+    origin; the hanging-wall cutoff is where the fault meets the horizon dropped by the throw;
+    the heave is the horizontal distance between the two cutoffs."""
+    far = 1e4
+    fault = shapely.LineString([(0.0, 0.0), (far, -far * np.tan(np.radians(dip_deg)))])
+    horizon_hw = shapely.LineString([(-far, -throw_m), (far, -throw_m)])
+    cut = fault.intersection(horizon_hw)
+    return cut.x - 0.0
+
+
 def test_heave_is_throw_over_tan_dip():
-    # Heave h = T / tan(dip) (geometry): T 100 m, dip 60 -> 57.735 m.
+    # Heave from a shapely cross-section (geometry of a planar fault): T 100 m, dip 60 -> 57.735 m.
     faults, stations = make_scene(
         [shapely.LineString([(0, -5000), (0, 5000)])], throw_fn=const_throw(100.0), dip=60.0, dip_dir=[90.0]
     )
     tr = transects_gdf([shapely.LineString([(-1000, 0), (1000, 0)])])
     t, c = measure_transects(faults, stations, tr, zone="full", n_draws=50)
-    assert c["heave_m"].iloc[0] == pytest.approx(57.735, abs=1e-3)
-    assert c["heave_along_m"].iloc[0] == pytest.approx(57.735, abs=1e-3)  # dip direction along the transect
-    assert t["sum_heave_m"].iloc[0] == pytest.approx(100.0 / np.tan(np.radians(60.0)), rel=1e-12)
+    ref = _cross_section_heave(100.0, 60.0)
+    assert ref == pytest.approx(57.735, abs=1e-3)
+    assert c["heave_m"].iloc[0] == pytest.approx(ref, rel=1e-9)
+    assert c["heave_along_m"].iloc[0] == pytest.approx(ref, rel=1e-9)  # dip direction along the transect
+    assert t["sum_heave_m"].iloc[0] == pytest.approx(ref, rel=1e-9)
 
 
 def test_extension_and_beta_check_value():
@@ -126,6 +147,15 @@ def test_subresolution_fraction_check_values(c, expected):
     # from memory/derived): D_min 0.01, D_t 20, D_max 2000 -> 0.2314 (C 0.7), 0.8558 (C 1.2), 0.6227 (C 1).
     f = fraction_below_detection(20.0, d_min=0.01, d_max=2000.0, exponent_c=c)
     assert float(f) == pytest.approx(expected, abs=5e-5)
+    # different route: the share of the summed displacement carried by faults below D_t, with the
+    # density n(D) = C D^(-C-1) of N(>=D) = a D^-C integrated numerically (scipy.integrate.quad,
+    # in log D for accuracy over five decades)
+    from scipy.integrate import quad
+
+    def moment(lo, hi):
+        return quad(lambda u: np.exp(u) * c * np.exp(u) ** (-c - 1.0) * np.exp(u), np.log(lo), np.log(hi))[0]
+
+    assert float(f) == pytest.approx(moment(0.01, 20.0) / moment(0.01, 2000.0), rel=1e-8)
 
 
 def test_subresolution_fraction_is_continuous_at_c_equal_one():
@@ -164,34 +194,48 @@ def test_subresolution_correction_is_separate_from_measured():
 
 # ----------------------------------------------------------------------------- projection and rake
 def test_projected_heave_cosine():
-    # heave_along = h |cos(dip direction - transect azimuth)| (geometry, dip slip assumed).
-    # Fault striking 30 deg (dip direction 120), crossed by an E-W transect: angle 30 deg.
-    ln = shapely.LineString([(-5000 * np.sin(np.radians(30)), -5000 * np.cos(np.radians(30))),
-                             (5000 * np.sin(np.radians(30)), 5000 * np.cos(np.radians(30)))])
+    # Fault striking 30 deg (dip direction 120), crossed by an E-W transect. Different route: two
+    # material points on the transect, one on each wall; the hanging-wall point moves by the heave
+    # along the dip direction (dip slip); the lengthening of the transect is the change of their
+    # along-transect distance.
+    ln = shapely.LineString(
+        [
+            (-5000 * np.sin(np.radians(30)), -5000 * np.cos(np.radians(30))),
+            (5000 * np.sin(np.radians(30)), 5000 * np.cos(np.radians(30))),
+        ]
+    )
     faults, stations = make_scene([ln], throw_fn=const_throw(100.0), dip=60.0, dip_dir=[120.0])
+    h = _cross_section_heave(100.0, 60.0)
+    fw, hw = np.array([-3000.0, 0.0]), np.array([3000.0, 0.0])  # the fault dips towards +E here
+    hw_moved = hw + h * np.array([np.sin(np.radians(120.0)), np.cos(np.radians(120.0))])
+    t_unit = np.array([1.0, 0.0])
+    lengthening = np.dot(hw_moved - fw, t_unit) - np.dot(hw - fw, t_unit)
     for line in ([(-3000, 0), (3000, 0)], [(3000, 0), (-3000, 0)]):  # transect direction does not matter
-        t, c = measure_transects(faults, stations, transects_gdf([shapely.LineString(line)]), zone="full",
-                                  n_draws=50)
-        h = 100.0 / np.tan(np.radians(60.0))
-        assert c["heave_along_m"].iloc[0] == pytest.approx(h * np.cos(np.radians(30.0)), rel=1e-9)
-        assert c["projection_cos"].iloc[0] == pytest.approx(np.cos(np.radians(30.0)), rel=1e-9)
+        t, c = measure_transects(
+            faults, stations, transects_gdf([shapely.LineString(line)]), zone="full", n_draws=50
+        )
+        assert c["heave_along_m"].iloc[0] == pytest.approx(lengthening, rel=1e-9)
+        assert c["projection_cos"].iloc[0] == pytest.approx(lengthening / h, rel=1e-9)
 
 
 def test_rake_adds_strike_slip_lengthening():
     # Slip vector from the rake (Aki & Richards 1980 convention, from memory: u = cos(r) s - sin(r) d_down,
     # r = -90 pure normal slip). Independent 3-D construction, then projection on the transect.
     dip, rake, T, dd, taz = 60.0, -60.0, 100.0, 90.0, 60.0
-    faults, stations = make_scene([shapely.LineString([(0, -5000), (0, 5000)])], throw_fn=const_throw(T),
-                                  dip=dip, dip_dir=[dd])
+    faults, stations = make_scene(
+        [shapely.LineString([(0, -5000), (0, 5000)])], throw_fn=const_throw(T), dip=dip, dip_dir=[dd]
+    )
     a = np.radians(taz)
-    tr = transects_gdf([shapely.LineString([(-2000 * np.sin(a), -2000 * np.cos(a)), (2000 * np.sin(a), 2000 * np.cos(a))])])
+    tr = transects_gdf(
+        [shapely.LineString([(-2000 * np.sin(a), -2000 * np.cos(a)), (2000 * np.sin(a), 2000 * np.cos(a))])]
+    )
     t, c = measure_transects(faults, stations, tr, rake_deg=rake, zone="full", n_draws=50)
     r, de = np.radians(rake), np.radians(dip)
     m = np.array([np.sin(np.radians(dd)), np.cos(np.radians(dd)), 0.0])
     s = np.array([np.sin(np.radians(dd - 90)), np.cos(np.radians(dd - 90)), 0.0])
     d_down = np.cos(de) * m + np.array([0, 0, -np.sin(de)])
-    u = np.cos(r) * s - np.sin(r) * d_down          # unit slip of the hanging wall
-    U = T / -u[2]                                    # scale so that the throw is T
+    u = np.cos(r) * s - np.sin(r) * d_down  # unit slip of the hanging wall
+    U = T / -u[2]  # scale so that the throw is T
     tvec = np.array([np.sin(a), np.cos(a), 0.0])
     expected = U * np.dot(u, tvec) * np.sign(np.dot(m, tvec))
     assert c["heave_along_m"].iloc[0] == pytest.approx(expected, rel=1e-9)
@@ -215,7 +259,9 @@ def test_curved_trace_crossed_twice_counts_twice():
     d_exp = np.sort(np.array([R * np.pi / 6, R * 5 * np.pi / 6]))
     assert np.sort(c["dist_along_fault_m"].to_numpy()) == pytest.approx(d_exp, rel=1e-4)
     t_exp = 80.0 * np.sin(np.pi * d_exp / arc.length)
-    assert np.sort(c["throw_m"].to_numpy()) == pytest.approx(np.sort(t_exp), abs=80.0 * (np.pi / 200) ** 2 / 8 + 1e-6)
+    assert np.sort(c["throw_m"].to_numpy()) == pytest.approx(
+        np.sort(t_exp), abs=80.0 * (np.pi / 200) ** 2 / 8 + 1e-6
+    )
     # unknown dip direction: the local trace normal is used (arc normal is radial, 30 deg from east)
     assert (c["dip_dir_source"] == "trace_normal").all()
     assert c["projection_cos"].to_numpy() == pytest.approx(np.full(2, np.cos(np.radians(30.0))), abs=1e-4)
@@ -227,8 +273,16 @@ def test_throw_tapers_to_zero_at_tips_and_fallback_profile():
     faults, _ = make_scene([ln], throw_fn=const_throw(10.0))
     d = np.array([4000.0, 5000.0, 6000.0])
     stations = gpd.GeoDataFrame(
-        dict(fault_id=1, dist_m=d, throw_m=[20.0, 30.0, 20.0], throw_err_m=1.0, status="ok",
-             geometry=[ln.interpolate(x) for x in d]), crs=CRS)
+        dict(
+            fault_id=1,
+            dist_m=d,
+            throw_m=[20.0, 30.0, 20.0],
+            throw_err_m=1.0,
+            status="ok",
+            geometry=[ln.interpolate(x) for x in d],
+        ),
+        crs=CRS,
+    )
     thr, err, src = throw_at(faults, stations, np.zeros(4, int), np.array([0.0, 2000.0, 4500.0, 10000.0]))
     assert thr == pytest.approx([0.0, 10.0, 25.0, 0.0])  # linear interpolation (analytic)
     assert (src == "stations").all()
@@ -245,7 +299,9 @@ def test_stations_without_dist_column_use_geometry():
     ln = shapely.LineString([(0, 0), (0, 10000)])
     faults, stations = make_scene([ln], throw_fn=lambda k, d, L: 0.01 * d * (L - d) / L)
     thr1, _, _ = throw_at(faults, stations, np.zeros(3, int), np.array([1000.0, 5000.0, 8000.0]))
-    thr2, _, _ = throw_at(faults, stations.drop(columns="dist_m"), np.zeros(3, int), np.array([1000.0, 5000.0, 8000.0]))
+    thr2, _, _ = throw_at(
+        faults, stations.drop(columns="dist_m"), np.zeros(3, int), np.array([1000.0, 5000.0, 8000.0])
+    )
     assert thr2 == pytest.approx(thr1, rel=1e-9)
 
 
@@ -258,11 +314,19 @@ def _oblique_scene():
         strike = 10.0 + rng.uniform(-15, 15)
         a = np.radians(strike)
         half = rng.uniform(4000, 7000)
-        lines.append(shapely.LineString([(x0 - half * np.sin(a), -half * np.cos(a)), (x0 + half * np.sin(a), half * np.cos(a))]))
+        lines.append(
+            shapely.LineString(
+                [(x0 - half * np.sin(a), -half * np.cos(a)), (x0 + half * np.sin(a), half * np.cos(a))]
+            )
+        )
         dds.append((strike + 90.0 + (180.0 if k % 2 else 0.0)) % 360.0)
     faults, stations = make_scene(
-        lines, throw_fn=lambda k, d, L: (30.0 + 5 * k) * np.sin(np.pi * d / L), dip=[55, 60, 65, 50, 60, 70],
-        dip_dir=dds, dip_source=["attribute", "default"] * 3, err=2.0,
+        lines,
+        throw_fn=lambda k, d, L: (30.0 + 5 * k) * np.sin(np.pi * d / L),
+        dip=[55, 60, 65, 50, 60, 70],
+        dip_dir=dds,
+        dip_source=["attribute", "default"] * 3,
+        err=2.0,
     )
     return faults, stations
 
@@ -272,8 +336,14 @@ def test_rotation_leaves_transect_sums_unchanged():
     tr = transects_gdf([shapely.LineString([(-3000, y), (11000, y)]) for y in (-2000.0, 0.0, 2500.0)])
     t0, c0 = quiet(measure_transects, faults, stations, tr, n_draws=300, seed=7)
     for theta in (37.0, 140.0):
-        t1, c1 = quiet(measure_transects, rotate_gdf(faults, theta), rotate_gdf(stations, theta),
-                       rotate_gdf(tr, theta), n_draws=300, seed=7)
+        t1, c1 = quiet(
+            measure_transects,
+            rotate_gdf(faults, theta),
+            rotate_gdf(stations, theta),
+            rotate_gdf(tr, theta),
+            n_draws=300,
+            seed=7,
+        )
         for col in ("n_crossings", "sum_heave_m", "sum_heave_along_m", "extension", "beta", "zone_length_m"):
             assert t1[col].to_numpy() == pytest.approx(t0[col].to_numpy(), rel=1e-9), col
         for col in ("sum_heave_err_m", "extension_p16", "extension_p84"):
@@ -312,8 +382,12 @@ def test_monte_carlo_reproducible_and_shrinks_with_dip_range():
     assert a["sum_heave_err_m"].iloc[0] == b["sum_heave_err_m"].iloc[0]
     assert a["extension_p84"].iloc[0] == b["extension_p84"].iloc[0]
     assert a["sum_heave_err_m"].iloc[0] != c["sum_heave_err_m"].iloc[0]
-    errs = [measure_transects(faults, stations, tr, n_draws=400, seed=11, dip_range_default_deg=r)[0]
-            ["sum_heave_err_m"].iloc[0] for r in (15.0, 10.0, 5.0, 0.0)]
+    errs = [
+        measure_transects(faults, stations, tr, n_draws=400, seed=11, dip_range_default_deg=r)[0][
+            "sum_heave_err_m"
+        ].iloc[0]
+        for r in (15.0, 10.0, 5.0, 0.0)
+    ]
     assert errs[0] > errs[1] > errs[2] > errs[3]
     assert errs[3] == pytest.approx(0.0, abs=1e-9)
     # With dips only, the 16-84 range brackets the nominal sum (dip-uniform draws around the nominal dip).
@@ -323,11 +397,17 @@ def test_monte_carlo_reproducible_and_shrinks_with_dip_range():
 def test_monte_carlo_throw_error_spread_matches_analytic():
     # One crossing, dip fixed (range 0): sum heave ~ N(h, (sigma_T / tan dip)^2) -> half 16-84 range
     # = sigma_T / tan(dip) (normal distribution, analytic).
-    faults, stations = make_scene([shapely.LineString([(0, -5000), (0, 5000)])], throw_fn=const_throw(100.0),
-                                  dip=60.0, dip_dir=[90.0], err=5.0)
+    faults, stations = make_scene(
+        [shapely.LineString([(0, -5000), (0, 5000)])],
+        throw_fn=const_throw(100.0),
+        dip=60.0,
+        dip_dir=[90.0],
+        err=5.0,
+    )
     tr = transects_gdf([shapely.LineString([(-1000, 0), (1000, 0)])])
-    t, _ = measure_transects(faults, stations, tr, n_draws=20000, seed=0, dip_range_attribute_deg=0.0,
-                            zone="full")
+    t, _ = measure_transects(
+        faults, stations, tr, n_draws=20000, seed=0, dip_range_attribute_deg=0.0, zone="full"
+    )
     assert t["sum_heave_err_m"].iloc[0] == pytest.approx(5.0 / np.tan(np.radians(60.0)), rel=0.03)
 
 
@@ -352,8 +432,10 @@ def test_mean_strike_is_axial_and_auto_transects_cross_everything():
     # Axial mean (doubled angles; Mardia & Jupp 2000, common practice): equal-length strikes 10 and 30 deg,
     # one digitised backwards (190 deg) -> 20 deg; transects perpendicular, azimuth 110.
     a1, a2 = np.radians(10.0), np.radians(190.0 + 20.0)
-    lines = [shapely.LineString([(0, 0), (8000 * np.sin(a1), 8000 * np.cos(a1))]),
-             shapely.LineString([(3000, 0), (3000 + 8000 * np.sin(a2), 8000 * np.cos(a2))])]
+    lines = [
+        shapely.LineString([(0, 0), (8000 * np.sin(a1), 8000 * np.cos(a1))]),
+        shapely.LineString([(3000, 0), (3000 + 8000 * np.sin(a2), 8000 * np.cos(a2))]),
+    ]
     faults, stations = make_scene(lines, throw_fn=lambda k, d, L: 30 * np.sin(np.pi * d / L))
     assert mean_strike_deg(faults) == pytest.approx(20.0, abs=1e-9)
     tr = auto_transects(faults, spacing_m=1000.0)
@@ -368,8 +450,12 @@ def test_mean_strike_is_axial_and_auto_transects_cross_everything():
 def test_ends_inside_flag():
     faults, stations = parallel_scene()
     # ends at x = 6000, between fault 3 (x 5000) and 4 (x 7000): faults continue beyond its end
-    tr = transects_gdf([shapely.LineString([(-1000, 5000), (6000, 5000)]),
-                        shapely.LineString([(-1000, 4000), (11000, 4000)])])
+    tr = transects_gdf(
+        [
+            shapely.LineString([(-1000, 5000), (6000, 5000)]),
+            shapely.LineString([(-1000, 4000), (11000, 4000)]),
+        ]
+    )
     with pytest.warns(FaultmapWarning, match="ends inside"):
         t, _ = measure_transects(faults, stations, tr, n_draws=50)
     assert t["ends_inside"].tolist() == [True, False]
@@ -391,8 +477,12 @@ def test_other_crs_raises_unless_reprojected():
 
 def test_transect_crossing_no_fault_warns_and_zero_sums():
     faults, stations = parallel_scene()
-    tr = transects_gdf([shapely.LineString([(-2000, 20000), (12000, 20000)]),
-                        shapely.LineString([(-2000, 5000), (12000, 5000)])])
+    tr = transects_gdf(
+        [
+            shapely.LineString([(-2000, 20000), (12000, 20000)]),
+            shapely.LineString([(-2000, 5000), (12000, 5000)]),
+        ]
+    )
     with pytest.warns(FaultmapWarning, match="crosses no fault"):
         t, c = measure_transects(faults, stations, tr, n_draws=50)
     row = t.iloc[0]
@@ -404,9 +494,11 @@ def test_transect_crossing_no_fault_warns_and_zero_sums():
 
 def test_zero_length_transect_is_named():
     faults, stations = parallel_scene()
-    tr = gpd.GeoDataFrame({"transect_id": [4, 9]},
-                          geometry=[shapely.LineString([(0, 0), (100, 0)]), shapely.LineString([(50, 50), (50, 50)])],
-                          crs=CRS)
+    tr = gpd.GeoDataFrame(
+        {"transect_id": [4, 9]},
+        geometry=[shapely.LineString([(0, 0), (100, 0)]), shapely.LineString([(50, 50), (50, 50)])],
+        crs=CRS,
+    )
     with pytest.raises(InputError, match="transect 9"):
         measure_transects(faults, stations, tr, n_draws=50)
 
@@ -451,7 +543,9 @@ def test_tool_wrapper_auto_and_user_transects():
     # a scaling result with alpha = 3.2 for max throws -> along-line C = alpha - 2 (derived, see tool docstring)
     from types import SimpleNamespace
 
-    user = transects_gdf([shapely.LineString([(-3000, 0), (11000, 0)])]).to_crs("EPSG:32637")  # runner/wrapper reproject
+    user = transects_gdf([shapely.LineString([(-3000, 0), (11000, 0)])]).to_crs(
+        "EPSG:32637"
+    )  # runner/wrapper reproject
     ctx2 = _ctx(faults, stations, transects=user)
     # same layout as the scaling tool leaves: {"dl": ..., "sizes": SizeResult with fits[...].alpha}
     sizes = SimpleNamespace(fits={"max_throw_m": SimpleNamespace(alpha=3.2, fitted=True)})
