@@ -4,11 +4,12 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 from pyproj import CRS
 
 from faultmap.errors import CRSError
 
-__all__ = ["local_metric_crs", "check_metric"]
+__all__ = ["local_metric_crs", "check_metric", "meridian_convergence_deg", "true_to_grid_azimuth"]
 
 
 def local_metric_crs(lon: float, lat: float) -> CRS:
@@ -40,3 +41,45 @@ def check_metric(crs: CRS, *, where: str) -> None:
         raise CRSError(
             f"{where}: CRS {crs.name} has units {', '.join(sorted(units))}; reproject to a CRS in metres."
         )
+
+
+def meridian_convergence_deg(crs, x, y) -> np.ndarray:
+    """Meridian convergence at projected points: the angle from grid north to true north, degrees.
+
+    Parameters
+    ----------
+    crs : pyproj.CRS or anything pyproj reads
+        Projected working CRS.
+    x, y : array_like
+        Points in ``crs``, metres.
+
+    Returns
+    -------
+    numpy.ndarray
+        Convergence gamma in degrees (PROJ's sign: positive where true north lies west of grid north,
+        e.g. east of the central meridian of a transverse Mercator zone in the northern hemisphere).
+        A true azimuth ``a`` is the grid azimuth ``a - gamma``.
+
+    Notes
+    -----
+    Computed for all points at once with ``pyproj.Proj(crs).get_factors(lon, lat)`` (PROJ's
+    numerical derivatives of the projection); ``tests/frame/test_convergence.py`` checks it against
+    the transverse Mercator series gamma = dlambda sin(phi) [1 + dlambda^2 cos^2(phi)/3 (1 + 3 eta^2
+    + 2 eta^4) + ...] (Snyder 1987, USGS Professional Paper 1395; from memory).
+    """
+    from pyproj import Proj, Transformer
+
+    crs = CRS.from_user_input(crs)
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    if x.size == 0:
+        return np.zeros(x.shape)
+    to_geo = Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True)
+    lon, lat = to_geo.transform(x, y)
+    f = Proj(crs).get_factors(np.atleast_1d(lon), np.atleast_1d(lat), errcheck=False)
+    return np.asarray(f.meridian_convergence, dtype=float).reshape(x.shape)
+
+
+def true_to_grid_azimuth(azimuth_deg, convergence_deg) -> np.ndarray:
+    """Grid azimuth (0-360) of a direction given from true north, with the convergence of :func:`meridian_convergence_deg`."""
+    return (np.asarray(azimuth_deg, dtype=float) - np.asarray(convergence_deg, dtype=float)) % 360.0

@@ -25,6 +25,8 @@ def tool_text(tool: Tool | BrokenTool) -> str:
     lines = [f"{tool.name}: {tool.summary}" + ("" if tool.available else "  [not available yet]")]
     if tool.requires:
         lines.append(f"  runs after: {', '.join(tool.requires)}")
+    if getattr(tool, "uses", ()):
+        lines.append(f"  uses when it can run: {', '.join(tool.uses)}")
     lines.append(f"  inputs: {', '.join(tool.inputs) or '-'}" + (f" (optional: {', '.join(tool.optional_inputs)})" if tool.optional_inputs else ""))
     if tool.layers:
         lines.append(f"  layers: {', '.join(tool.layers)}")
@@ -66,7 +68,8 @@ def render_reference(tools: dict | None = None) -> str:
             out += ["", t.description]
         out += [
             "",
-            f"- runs after: {', '.join(t.requires) or '-'}",
+            f"- runs after: {', '.join(t.requires) or '-'}"
+            + (f"; uses when it can run: {', '.join(t.uses)}" if getattr(t, "uses", ()) else ""),
             f"- inputs: {', '.join(t.inputs) or '-'}" + (f"; optional: {', '.join(t.optional_inputs)}" if t.optional_inputs else ""),
             f"- layers: {', '.join(t.layers) or '-'}",
             f"- figures: {', '.join(t.figures) or '-'}",

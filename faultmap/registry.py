@@ -43,11 +43,27 @@ INPUT_KINDS = {
     "dem": "Digital elevation model: any raster GDAL reads, in a projected metric CRS.",
     "transects": "Transect lines (optional): any vector source GDAL reads.",
     "study_area": "Study-area polygon(s) (optional): traces ending near its boundary are censored.",
+    "throw_points": "Throw measurements (optional): a point layer with throw_m (and throw_err_m), e.g. field or "
+    "seismic throws, snapped to the nearest trace.",
 }
 
-#: Attribute fields the tools read from the fault traces: our name -> default column name
-#: (remapped with ``--field NAME=COLUMN`` or a project file's ``[fields]`` table).
-DEFAULT_FIELDS = {"name": "name", "dip": "dip", "dip_dir": "dip_dir", "active": "active", "surface_age_ka": "surface_age_ka"}
+#: Attribute fields the tools read from the fault traces (and, for ``throw_m`` / ``throw_err_m``, from the
+#: throw points): our name -> default column name (remapped with ``--field NAME=COLUMN`` or a project
+#: file's ``[fields]`` table). Numbers may be written as ranges ``50-70`` or triples ``(50,60,70)``
+#: (see :mod:`faultmap.traces.attributes`).
+DEFAULT_FIELDS = {
+    "name": "name",
+    "dip": "dip",
+    "dip_dir": "dip_dir",
+    "active": "active",
+    "surface_age_ka": "surface_age_ka",
+    "max_throw_m": "max_throw_m",
+    "max_throw_err_m": "max_throw_err_m",
+    "displacement_m": "displacement_m",
+    "slip_rate_mm_yr": "slip_rate_mm_yr",
+    "throw_m": "throw_m",
+    "throw_err_m": "throw_err_m",
+}
 
 _TYPE_NAMES = {float: "number", int: "integer", bool: "true/false", str: "text"}
 
@@ -182,7 +198,13 @@ class Tool:
     run : callable
         ``run(ctx, params)``: reads from and writes to the run context.
     requires : tuple of str
-        Tools that must run before this one.
+        Tools that must run before this one: without them this tool cannot run at all.
+    uses : tuple of str
+        Tools that run before this one when they can (asked for, or their inputs are there); without
+        them the tool runs the parts it can and says which parts it left out and why.
+    check : callable, optional
+        ``check(ctx, params) -> str | None``, called once the inputs are loaded: why the tool cannot
+        run on them (``None``: it can). A tool the user did not ask for is then left out with that reason.
     inputs, optional_inputs : tuple of str
         Input kinds from :data:`INPUT_KINDS`.
     params : tuple of Param
@@ -199,6 +221,8 @@ class Tool:
     summary: str
     run: Callable[..., None]
     requires: tuple[str, ...] = ()
+    uses: tuple[str, ...] = ()
+    check: Callable[..., str | None] | None = field(default=None, compare=False)
     inputs: tuple[str, ...] = ("faults",)
     optional_inputs: tuple[str, ...] = ()
     params: tuple[Param, ...] = ()
@@ -304,7 +328,7 @@ def get_tool(name: str, tools: dict | None = None) -> Tool:
 
 
 def resolve_order(names: Sequence[str], tools: dict) -> list[str]:
-    """Tools to run for ``names``, with their requirements, in dependency order.
+    """Tools to run for ``names``, with their requirements (``requires`` and ``uses``), in dependency order.
 
     Raises
     ------
@@ -323,7 +347,7 @@ def resolve_order(names: Sequence[str], tools: dict) -> list[str]:
             raise ParameterError(f"tool dependency cycle: {' -> '.join(chain + (n,))}.")
         visiting.add(n)
         t = tools[n]
-        for r in getattr(t, "requires", ()):
+        for r in tuple(getattr(t, "requires", ())) + tuple(getattr(t, "uses", ())):
             visit(r, chain + (n,))
         visiting.discard(n)
         result.append(n)

@@ -37,8 +37,13 @@ INPUT_KEYS = {
     "transects_layer": str,
     "study_area": str,
     "study_area_layer": str,
+    "throw_points": str,
+    "throw_points_layer": str,
     "crs": str,
 }
+
+#: Input keys that name files (or layers' sources), in the order they are shown.
+_FILE_INPUTS = ("faults", "dem", "transects", "study_area", "throw_points")
 
 
 def _echo(msg: str) -> None:
@@ -57,7 +62,7 @@ class RunContext:
         Traces as read, reprojected to the working CRS (before ``prepare``).
     dem : faultmap.io.dem.Dem or None
         Lazy DEM.
-    transects, study_area : geopandas.GeoDataFrame or None
+    transects, study_area, throw_points : geopandas.GeoDataFrame or None
         Optional layers in the working CRS.
     layers : dict
         Output layers by name; ``faults`` is also ``ctx.faults``.
@@ -72,6 +77,7 @@ class RunContext:
     dem: Any = None
     transects: gpd.GeoDataFrame | None = None
     study_area: gpd.GeoDataFrame | None = None
+    throw_points: gpd.GeoDataFrame | None = None
     layers: dict = field(default_factory=dict)
     results: dict = field(default_factory=dict)
     fields: dict = field(default_factory=dict)
@@ -233,7 +239,7 @@ def _load_inputs(ctx: RunContext, inputs: dict, needed: set[str]) -> None:
             ctx.info(f"{src} reprojected from {raw.crs.name} to the working CRS {ctx.crs.name}.")
             raw = raw.to_crs(ctx.crs)
         ctx.raw_faults = raw
-    for kind in ("transects", "study_area"):
+    for kind in ("transects", "study_area", "throw_points"):
         if kind in inputs:
             g = read_layer(inputs[kind], layer=inputs.get(f"{kind}_layer"), what=kind, crs=crs_override)
             if ctx.crs is None:
@@ -313,7 +319,7 @@ def _run_info(ctx: RunContext, order: list[str], params: dict, inputs: dict, out
     rows += [(f"library.{k}", v) for k, v in library_versions().items()]
     shown = {}
     for k, v in inputs.items():
-        if k in ("faults", "dem", "transects", "study_area"):
+        if k in _FILE_INPUTS:
             shown[str(v)] = _shown_path(v, base)
             shown[str(Path(str(v)).resolve())] = shown[str(v)]
             rows.append((f"input.{k}", shown[str(v)]))
@@ -406,7 +412,7 @@ def run_tools(
     registry = load_tools() if tools is None else tools
     params = {k: dict(v or {}) for k, v in (params or {}).items()}
     inputs = _check_inputs(dict(inputs))
-    sources = [inputs[k] for k in ("faults", "dem", "transects", "study_area") if inputs.get(k)]
+    sources = [inputs[k] for k in _FILE_INPUTS if inputs.get(k)]
     folders = [figures] if figures is not None else []
     out = check_target(out, overwrite=overwrite, inputs=sources, folders=folders)
     if engine is None:
@@ -421,21 +427,7 @@ def run_tools(
     if unknown_params:
         raise InputError(f"parameters given for unknown tool '{unknown_params[0]}'; tools: {', '.join(registry)}.")
     order = resolve_order(names, registry)
-    skipped: list[str] = []
-    if skip_unavailable:
-        runnable: list[str] = []
-        for n in order:
-            t = registry[n]
-            need = set(getattr(t, "inputs", ()))
-            if isinstance(t, BrokenTool) or not t.available:
-                skipped.append(f"{n} (not available yet)")
-            elif any(r not in runnable for r in t.requires):
-                skipped.append(f"{n} (needs {', '.join(r for r in t.requires if r not in runnable)})")
-            elif not need <= set(inputs):
-                skipped.append(f"{n} (needs input {', '.join(sorted(need - set(inputs)))})")
-            else:
-                runnable.append(n)
-        order = runnable
+    order, skipped = _runnable_by_inputs(order, names, registry, inputs, skip_unavailable=skip_unavailable)
     for n in order:
         t = registry[n]
         if isinstance(t, BrokenTool):
@@ -465,6 +457,8 @@ def run_tools(
         time_s: dict[str, float] = {"load": time.perf_counter() - t0}
         for s in skipped:
             ctx.info(f"skipped {s}.")
+        order = _runnable_on_data(ctx, order, names, registry, resolved, skip_unavailable=skip_unavailable)
+        resolved = {n: resolved[n] for n in order}
         implicit = [n for n in order if n not in names and n not in params]
         if implicit:
             ctx.info(f"also ran {', '.join(implicit)} with default parameters (required by the tools asked for).")
@@ -521,6 +515,65 @@ def run_tools(
         report=report_path,
         styles=styles,
     )
+
+
+def _runnable_by_inputs(order: list[str], names, registry: dict, inputs: dict, *, skip_unavailable: bool):
+    """Leave out, before reading anything, the tools that lack an input or a hard requirement.
+
+    A tool the user asked for by name is never left out here (unless ``skip_unavailable``): it fails
+    later with a message naming the missing input. A tool only pulled in by another's ``requires`` or
+    ``uses`` is left out, and the reason is returned.
+    """
+    runnable: list[str] = []
+    skipped: list[str] = []
+    for n in order:
+        t = registry[n]
+        optional = skip_unavailable or n not in names
+        if isinstance(t, BrokenTool) or not t.available:
+            if skip_unavailable:
+                skipped.append(f"{n} (not available yet)")
+                continue
+            runnable.append(n)  # refused below with its own message
+            continue
+        need = set(getattr(t, "inputs", ()))
+        missing = [r for r in t.requires if r not in runnable]
+        if optional and missing:
+            skipped.append(f"{n} (needs {', '.join(missing)})")
+        elif optional and not need <= set(inputs):
+            skipped.append(f"{n} (needs input {', '.join(sorted(need - set(inputs)))})")
+        else:
+            runnable.append(n)
+    return runnable, skipped
+
+
+def _runnable_on_data(ctx: RunContext, order: list[str], names, registry: dict, resolved: dict, *,
+                      skip_unavailable: bool) -> list[str]:
+    """Leave out, once the inputs are read, the tools whose ``check`` says they cannot run on them.
+
+    A tool whose hard requirement (``requires``) was left out is left out too; one that only ``uses``
+    it runs and says itself which parts it left out (the reasons are in ``ctx.results['left_out']``).
+    A tool asked for by name that cannot run is an error naming the reason. Every reason goes to
+    ``run_info`` (``left_out.TOOL``).
+    """
+    left_out: dict[str, str] = ctx.results.setdefault("left_out", {})
+    kept: list[str] = []
+    for n in order:
+        t = registry[n]
+        reason = None
+        gone = [r for r in getattr(t, "requires", ()) if r in left_out]
+        if gone:
+            reason = f"needs {gone[0]}, which was left out ({left_out[gone[0]]})"
+        elif getattr(t, "check", None) is not None:
+            reason = t.check(ctx, resolved[n])
+        if reason is None:
+            kept.append(n)
+            continue
+        if n in names and not skip_unavailable:
+            raise InputError(f"{n}: {reason}.")
+        left_out[n] = reason
+        ctx.records[f"left_out.{n}"] = reason
+        ctx.info(f"left out {n}: {reason}.")
+    return kept
 
 
 def _stage_report_and_styles(out: Path, layers: dict, run_info, staged: dict, figures: list[Path], report: bool):

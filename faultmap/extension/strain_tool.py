@@ -43,7 +43,8 @@ def run(ctx, p: dict) -> None:
         raise InputError("strain needs the faults layer: run prepare and throw first.")
     stations = ctx.layers.get("throw_stations")
     if stations is None and "max_throw_m" not in faults.columns:
-        raise InputError("strain needs throws: run the throw tool first (no throw_stations, no max_throw_m).")
+        raise InputError("strain needs throws (heaves are summed): give a DEM, throw points or a max_throw_m "
+                         "attribute and run the throw tool first.")
     cell = p["cell_size_m"]
     if cell is None:
         # about 10 x 10 cells over the faults' bounding box, rounded (our default)

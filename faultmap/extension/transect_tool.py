@@ -68,6 +68,16 @@ def scaling_line_exponent(result) -> tuple[float | None, str]:
     return c, f"alpha {float(alpha):.3g} of max_throw_m from scaling, C = alpha - 2"
 
 
+def _with_fault_throw_source(crossings, faults):
+    """Add ``fault_throw_source`` (dem, points, attributes) of each crossed fault to the crossings."""
+    if "throw_source" not in faults.columns or "fault_id" not in crossings.columns:
+        return crossings
+    src = faults.set_index("fault_id")["throw_source"]
+    out = crossings.copy()
+    out["fault_throw_source"] = out["fault_id"].map(src).fillna("none").astype(object).to_numpy()
+    return out
+
+
 def run(ctx, p: dict) -> None:
     """Measure extension along the user's or automatic transects."""
     from faultmap.extension.transect_batches import (
@@ -83,7 +93,8 @@ def run(ctx, p: dict) -> None:
         raise InputError("transect needs the faults layer: run prepare and throw first.")
     stations = ctx.layers.get("throw_stations")
     if stations is None and "max_throw_m" not in faults.columns:
-        raise InputError("transect needs throws: run the throw tool first (no throw_stations, no max_throw_m).")
+        raise InputError("transect needs throws (heaves are summed): give a DEM, throw points or a max_throw_m "
+                         "attribute and run the throw tool first.")
 
     user = ctx.transects
     if user is not None and len(user):
@@ -154,6 +165,10 @@ def run(ctx, p: dict) -> None:
         progress=lambda it, total: ctx.progress(it, total=total, desc="transect"),
     )
     t, crossings, messages = gather_transect_batches(outs)
+    crossings = _with_fault_throw_source(crossings, faults)
+    if "throw_source" in crossings.columns and (crossings["throw_source"] == "max_throw_profile").any():
+        ctx.record("assumed_profile", "max_throw_profile: parabola T = Tmax (1 - r^2) scaled to max_throw_m where "
+                   "a fault has no measured profile (our rule)")
     for m in messages:
         ctx.warn(m)
     ctx.record("n_batches", len(batches))
@@ -245,6 +260,8 @@ TOOL = Tool(
         "h = T / tan(dip) projected on the transect. Extension e = (L1 - L0) / L0 and beta = L1 / L0 with "
         "L0 = L1 - sum(projected heave); uncertainties by Monte Carlo over dip and throw errors (16-84 % "
         "range). The Marrett & Allmendinger (1992) estimate of extension on faults below detection is "
-        "reported in separate fields. See docs/methods/extension.md."
+        "reported in separate fields. Crossings say where each throw came from: throw_source (the fault's "
+        "stations or the assumed max_throw_profile) and fault_throw_source (dem, points or attributes). "
+        "See docs/methods/extension.md."
     ),
 )

@@ -36,7 +36,14 @@ def run(ctx, p: dict) -> None:
     if faults is None:
         raise InputError("hazard needs the faults layer: run prepare (and throw) first.")
     if "max_throw_m" not in faults.columns:
-        ctx.warn("faults have no max_throw_m (throw not run): slip rates and recurrence are skipped.")
+        reason = ctx.results.get("left_out", {}).get("throw")
+        why = f"throw was left out ({reason})" if reason else "throw not run"
+        given = "slip_rate_mm_yr" in faults.columns
+        ctx.warn(
+            f"faults have no max_throw_m ({why}): slip rates from throw and age left out"
+            + ("; the slip_rate_mm_yr field is used where given." if given else "; magnitudes still given.")
+        )
+        ctx.record("left_out_parts", f"slip rates from throw and age: {why}")
 
     u = p["mapping_uncertainty_m"]
     scale = p["map_scale_denominator"]
@@ -44,7 +51,11 @@ def run(ctx, p: dict) -> None:
         # traces were drawn on (or checked against) the DEM: one pixel (common practice)
         u = float(ctx.dem.pixel_size) if ctx.dem is not None else 0.0
         ctx.record("mapping_uncertainty_m_used", u)
-        ctx.info(f"mapping uncertainty of the traces not given: using {u:g} m (one DEM pixel).")
+        if ctx.dem is not None:
+            ctx.info(f"mapping uncertainty of the traces not given: using {u:g} m (one DEM pixel).")
+        else:
+            ctx.warn("mapping uncertainty of the traces not given and no DEM: 0 m used; give map_scale_denominator "
+                     "or mapping_uncertainty_m.")
 
     ids = _parse_ids(p["fault_ids"])
     ctx.record("fault_ids_used", "active field" if ids is None else ",".join(map(str, ids)))
@@ -86,6 +97,15 @@ def run(ctx, p: dict) -> None:
     )
     for w in res.warnings:
         ctx.warn(w)
+    if "slip_rate_mm_yr" in res.faults.columns:
+        from faultmap.hazard.inputs import rates_from_field
+
+        res.faults, n_given, w_given = rates_from_field(
+            res.faults, dip_range_deg=p["dip_range_deg"], n_draws=n_draws, seed=p["seed"],
+        )
+        for w in w_given:
+            ctx.warn(w)
+        ctx.record("n_slip_rates_from_field", n_given)
     ctx.warn(CAUTION)
     ctx.record("caution", CAUTION)
     for k in ("n_screened", "n_scenarios", "preferred_rule", "mapping_uncertainty_m"):
@@ -109,7 +129,8 @@ TOOL = Tool(
     name="hazard",
     summary="Screening of active faults: magnitudes, slip rates, recurrence, surface-rupture zones.",
     run=run,
-    requires=("throw",),
+    requires=("prepare",),
+    uses=("throw",),
     inputs=("faults",),
     optional_inputs=("dem",),
     params=(
@@ -190,7 +211,9 @@ TOOL = Tool(
         "seismic moment M0 = mu A D and Mw = 2/3 (log10 M0 - 9.1) (IASPEI). Slip rates = throw / age of the "
         "offset surface (vertical, horizontal, net) with a seeded Monte Carlo over throw error, age error "
         "and dip; recurrence = single-event displacement / net slip rate. Surface-rupture zones wider on "
-        "the hanging wall (the side the dip direction points to) plus the mapping uncertainty. "
+        "the hanging wall (the side the dip direction points to) plus the mapping uncertainty. Magnitudes "
+        "need the traces only; without throws, slip rates come from a slip_rate_mm_yr field (net dip slip, "
+        "a number, range or triple) where given. "
         "See docs/methods/hazard.md. " + CAUTION
     ),
 )

@@ -30,6 +30,45 @@ def _detection_throw(ctx, faults, given: float | None) -> tuple[float, str]:
         source = "one DEM pixel (no throw errors)" if np.isfinite(value) else "not available (no throw errors)"
     return value, source
 
+def left_out_reason(ctx, what: str = "the faults have no throws") -> str:
+    """Why the throw tool gave no throws: its left-out reason when the runner left it out."""
+    reason = ctx.results.get("left_out", {}).get("throw")
+    return f"throw was left out ({reason})" if reason else what
+
+
+def _lengths_only(ctx, p: dict, faults) -> None:
+    """Length statistics of the traces alone: the power-law size distribution of lengths (no throws)."""
+    from faultmap.population.sizes import analyse_sizes
+
+    why = left_out_reason(ctx)
+    ctx.warn(f"left out the D-L scaling and the max_throw_m size distribution: {why}; length statistics only.")
+    ctx.record("left_out_parts", f"D-L scaling, max_throw_m size distribution: {why}")
+    if p["unit"] == "system":
+        ctx.info("without throws the length statistics are per trace (unit 'system' applies to D-L scaling).")
+    pop = faults[["fault_id", "length_m"]].copy()
+    pop["censored"] = faults["censored"].to_numpy(dtype=bool) if "censored" in faults else False
+    det_l = p["detection_length_m"] if p["detection_length_m"] > 0 else None
+    limits = {"length_m": det_l}
+    sizes = analyse_sizes(
+        pop, variables=("length_m",), include_censored=p["include_censored"], detection_limits=limits,
+        min_tail=p["min_tail"], max_candidates=p["max_candidates"], gof_n=p["gof_n"], seed=p["seed"],
+    )
+    for w in sizes.warnings:
+        ctx.warn(w)
+    ctx.layers["scaling"] = sizes.table.assign(unit="trace")
+    ctx.results["scaling"] = {"dl": None, "sizes": sizes}
+    f = sizes.fits.get("length_m")
+    if f is not None and f.fitted:
+        ctx.record("alpha_length_m", f"{f.alpha:.4g} +- {f.se:.2g} (x_min {f.x_min:.4g}, p_gof {f.gof_p:.2g})")
+        ctx.record("gof_n_used_length_m", int(f.gof_n))
+        ctx.record("gof_p_se_length_m", float(f.gof_p_se))
+    ctx.info(f"length statistics of {len(pop)} traces (no throws).")
+    if ctx.figures_enabled:
+        from faultmap.population.figures import size_figure
+
+        ctx.save_figure(size_figure(sizes.fits, detection_limits=limits), "scaling_sizes.png")
+
+
 def run(ctx, p: dict) -> None:
     """Fit D-L scaling and size distributions of ``ctx.faults``."""
     import pandas as pd
@@ -43,8 +82,9 @@ def run(ctx, p: dict) -> None:
             "scaling: no faults layer; run prepare and throw first (they run "
             "automatically when scaling is asked for)."
         )
-    if "max_throw_m" not in faults:
-        raise InputError("scaling: the faults layer has no max_throw_m; run the throw tool first.")
+    if "max_throw_m" not in faults or not np.isfinite(np.asarray(faults["max_throw_m"], dtype=float)).any():
+        _lengths_only(ctx, p, faults)
+        return
     stations = ctx.layers.get("throw_stations")
     det_t, det_src = _detection_throw(ctx, faults, p["detection_throw_m"])
     ctx.record("detection_throw_m_used", det_t)
@@ -121,9 +161,10 @@ def run(ctx, p: dict) -> None:
 
 TOOL = Tool(
     name="scaling",
-    summary="Displacement-length scaling and fault size distributions.",
+    summary="Displacement-length scaling and fault size distributions (length statistics from traces alone).",
     run=run,
-    requires=("throw",),
+    requires=("prepare",),
+    uses=("throw",),
     inputs=("faults",),
     optional_inputs=(),
     params=(
@@ -279,6 +320,7 @@ TOOL = Tool(
         "are fitted with a power law by maximum likelihood, x_min by the KS distance, a bootstrap "
         "goodness-of-fit p-value (with its Monte Carlo standard error) and Vuong likelihood-ratio "
         "tests against exponential and log-normal (Clauset, Shalizi & Newman 2009), with the effect of censoring and of the "
-        "detection limit reported. See docs/methods/scaling.md."
+        "detection limit reported. Without throws (no DEM, no throw attributes or points) only the length "
+        "distribution is fitted, and the run says so. See docs/methods/scaling.md."
     ),
 )

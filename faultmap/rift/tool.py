@@ -98,8 +98,21 @@ def run(ctx, p: dict) -> None:
     faults = ctx.faults
     if faults is None or len(faults) == 0:
         raise InputError("width needs the faults layer: run prepare and throw first.")
-    if "max_throw_m" not in faults.columns:
-        raise InputError("width needs throws: run the throw tool first (faults have no max_throw_m).")
+    weight = p["axis_weight"]
+    has_throw = "max_throw_m" in faults.columns and np.isfinite(np.asarray(faults["max_throw_m"], dtype=float)).any()
+    if not has_throw:
+        reason = ctx.results.get("left_out", {}).get("throw")
+        why = f"throw was left out ({reason})" if reason else "the faults have no throws"
+        ctx.warn(
+            f"left out the heave-based parts ({why}): the axis is fitted with length weights, every fault counts "
+            "for the outermost-fault width, and the heave widths and heave share are not measured."
+        )
+        ctx.record("left_out_parts", f"heave weights, heave widths, heave share: {why}")
+        faults = faults.drop(columns=[c for c in ("max_throw_m", "heave_integral_m2", "mean_throw_m")
+                                      if c in faults.columns])
+        if weight == "heave":
+            weight = "length"
+            ctx.record("axis_weight_used", "length (no throws)")
     if p["localised_share"] <= p["distributed_share"]:
         raise ParameterError("[width] localised_share must be larger than distributed_share.")
     if p["narrow_max_km"] >= p["wide_min_km"]:
@@ -111,7 +124,7 @@ def run(ctx, p: dict) -> None:
             line = shapely.from_wkt(p["axis_wkt"])
         except Exception as exc:  # shapely raises its own GEOS error types
             raise ParameterError(f"[width] axis_wkt is not valid WKT ({exc}); give a LINESTRING in the working CRS.") from None
-    axis = rift_axis(faults, line=line, weight=p["axis_weight"], smoothing_m=p["smoothing_m"])
+    axis = rift_axis(faults, line=line, weight=weight, smoothing_m=p["smoothing_m"])
     axis_line = axis.geometry.iloc[0]
     ctx.record("axis_source", axis["source"].iloc[0])
     if line is None:
@@ -214,7 +227,8 @@ TOOL = Tool(
     name="width",
     summary="Rift axis, width along the rift, narrow/wide classification and subsidence from stretching.",
     run=run,
-    requires=("throw",),
+    requires=("prepare",),
+    uses=("throw",),
     inputs=("faults",),
     optional_inputs=("dem",),
     params=(
@@ -289,6 +303,7 @@ TOOL = Tool(
         "practice: narrow < ~100 km, wide from ~150-200 km), the heave share of the largest faults, and "
         "optionally heat flow and crustal thickness against the Buck (1991) modes; the reasons field says "
         "which numbers decided. Subsidence from beta after McKenzie (1978), water-loaded; sediment loading "
-        "is not modelled. See docs/methods/width.md."
+        "is not modelled. Axis and outermost-fault widths need the traces only; without throws the heave-based "
+        "parts are left out and the run says so. See docs/methods/width.md."
     ),
 )

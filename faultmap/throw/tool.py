@@ -1,9 +1,11 @@
-"""Tool ``throw``: throw, heave and vertical separation along every trace from the DEM.
+"""Tool ``throw``: throw, heave and vertical separation along every trace, from the DEM or without one.
 
 A thin wrapper: it takes the prepared ``faults`` and the lazy DEM from the
 run context, calls :func:`faultmap.throw.step.measure_throw` (batches of
 stations run through the run's engine), records the adapted parameter
-values in ``run_info`` and draws the figures.
+values in ``run_info`` and draws the figures. Without a DEM (``source``), the
+throws come from the traces' attributes (:mod:`faultmap.throw.from_attributes`)
+or from a layer of throw measurements (:mod:`faultmap.throw.from_points`).
 """
 
 from __future__ import annotations
@@ -15,15 +17,70 @@ from faultmap.registry import Param, Tool
 
 _FIGURES = ("throw_map.png", "throw_profiles.png", "throw_systems.png")
 
+#: Where throws come from (``auto``: the DEM where given, else throw points, else attributes).
+SOURCES = ("auto", "dem", "attributes", "points")
+
+#: Trace attributes that give a throw without a DEM.
+_THROW_FIELDS = ("max_throw_m", "displacement_m")
+
+
+def _has_throw_attributes(ctx) -> bool:
+    """Whether the traces carry a max_throw_m or displacement_m field (after the field mapping)."""
+    raw = ctx.raw_faults
+    if raw is None:
+        return False
+    return any(ctx.fields.get(k, k) in raw.columns for k in _THROW_FIELDS)
+
+
+def resolve_source(ctx, source: str) -> tuple[str | None, str | None]:
+    """Return the throw source used for ``source`` on the loaded inputs, or why there is none.
+
+    Returns
+    -------
+    (source, reason)
+        ``source`` is ``dem``, ``points`` or ``attributes``; ``reason`` (when ``source`` is None)
+        says what is missing and what to give.
+    """
+    attrs = _has_throw_attributes(ctx)
+    if source == "auto":
+        if ctx.dem is not None:
+            return "dem", None
+        if getattr(ctx, "throw_points", None) is not None:
+            return "points", None
+        if attrs:
+            return "attributes", None
+        return None, ("no DEM, no throw points and no max_throw_m or displacement_m field on the traces; give "
+                      "--dem, --throw-points or a throw attribute")
+    if source == "dem" and ctx.dem is None:
+        return None, "source 'dem' needs a DEM; give --dem or [inputs] dem (or another source)"
+    if source == "points" and getattr(ctx, "throw_points", None) is None:
+        return None, "source 'points' needs a point layer of throws; give --throw-points or [inputs] throw_points"
+    if source == "attributes" and not attrs:
+        return None, ("source 'attributes' needs a max_throw_m or displacement_m field on the traces "
+                      "(map yours with --field max_throw_m=COLUMN)")
+    return source, None
+
+
+def check(ctx, p: dict) -> str | None:
+    """Why throw cannot run on the loaded inputs (None: it can)."""
+    return resolve_source(ctx, p["source"])[1]
+
 
 def run(ctx, p: dict) -> None:
     """Measure throw along the prepared traces and store the layers."""
-    from faultmap.throw.params import resolve_params
-    from faultmap.throw.step import measure_throw
-
     faults = ctx.faults
     if faults is None:
         raise InputError("throw needs the prepared 'faults' layer; run prepare first.")
+    source, reason = resolve_source(ctx, p["source"])
+    if source is None:
+        raise InputError(f"throw: {reason}.")
+    ctx.record("source_used", source)
+    if source != "dem":
+        _run_without_dem(ctx, p, source)
+        return
+    from faultmap.throw.params import resolve_params
+    from faultmap.throw.step import measure_throw
+
     dem = ctx.dem
     if dem is None:
         raise InputError("throw needs a DEM; give --dem or [inputs] dem.")
@@ -128,6 +185,10 @@ def run(ctx, p: dict) -> None:
         f"{len(res.stations)} stations on {len(res.faults)} faults: {int(counts.get('ok', 0))} ok; "
         f"down-thrown side from the DEM for {n_dem} faults; {len(res.linkage_zones)} linkage zones."
     )
+    res.faults["throw_source"] = np.where(
+        np.isfinite(res.faults["max_throw_m"].to_numpy(dtype=float)), "dem", "none"
+    ).astype(object)
+    res.stations["throw_source"] = "dem"
     ctx.faults = res.faults
     ctx.layers["throw_stations"] = res.stations
     ctx.layers["linkage_zones"] = res.linkage_zones
@@ -149,6 +210,60 @@ def run(ctx, p: dict) -> None:
             system_profiles(res.faults, res.stations, res.linkage_zones, max_systems=p["n_system_figures"]),
             "throw_systems.png",
         )
+
+
+def _run_without_dem(ctx, p: dict, source: str) -> None:
+    """Throws from point measurements or from the traces' attributes (no DEM)."""
+    from faultmap.throw.from_attributes import ASSUMED_PROFILE, throws_from_attributes
+
+    faults = ctx.faults
+    stations = None
+    if source == "points":
+        from faultmap.throw.from_points import point_stations, throws_from_points
+
+        pts = ctx.throw_points
+        where = pts.attrs.get("source", "throw_points")
+        join = p["point_join_field"]
+        if join and join not in faults.columns and ctx.raw_faults is not None and join in ctx.raw_faults.columns:
+            # prepare keeps its own columns: bring the join field over by the source feature number
+            raw = ctx.raw_faults.reset_index(drop=True)
+            faults = faults.copy()
+            faults[join] = raw[join].to_numpy()[faults["source_fid"].to_numpy() - 1]
+        st, warns = point_stations(
+            faults, pts, fields=ctx.fields, tolerance_m=p["point_tolerance_m"], join_field=join,
+            default_rel_err=p["point_throw_rel_err"], where=where,
+        )
+        for w in warns:
+            ctx.warn(w)
+        smooth = 0.0 if p["smooth_stations"] is None else p["smooth_stations"]
+        ctx.record("smooth_stations_used", f"{smooth:g} (points: each measurement as it is unless set)")
+        f, stations = throws_from_points(faults, st, smooth_stations=smooth)
+        if join and join not in ctx.faults.columns:
+            f = f.drop(columns=join)
+        ctx.record("n_points_used", len(stations))
+        ctx.record("point_tolerance_m_used", p["point_tolerance_m"] if not join else f"joined by '{join}'")
+        if _has_throw_attributes(ctx):  # faults without points keep their attribute throws
+            fa, _ = throws_from_attributes(faults)
+            fill = (f["throw_source"].to_numpy() == "none") & (fa["throw_source"].to_numpy() == "attributes")
+            for c in ("max_throw_m", "max_throw_err_m", "mean_throw_m", "heave_integral_m2", "throw_source",
+                      "throw_profile"):
+                f.loc[fill, c] = fa.loc[fill, c].to_numpy()
+    else:
+        f, warns = throws_from_attributes(faults)
+        for w in warns:
+            ctx.warn(w)
+    n_by = f["throw_source"].value_counts()
+    ctx.record("throw_source_counts", ", ".join(f"{k} {int(v)}" for k, v in n_by.items()))
+    if (f["throw_profile"] == ASSUMED_PROFILE).any():
+        ctx.record("assumed_profile", "parabola T = Tmax (1 - r^2) where only a maximum throw is given (our rule)")
+    ctx.info(
+        f"no DEM: throws from {source} for {int((f['throw_source'] != 'none').sum())} of {len(f)} faults "
+        "(down-thrown sides only where dip_dir is given; no linkage zones)."
+    )
+    ctx.faults = f
+    if stations is not None:
+        ctx.layers["throw_stations"] = stations
+    ctx.results["throw"] = {"faults": f, "stations": stations, "source": source}
 
 
 def _relink(ctx, res, params) -> None:
@@ -183,11 +298,49 @@ def _relink(ctx, res, params) -> None:
 
 TOOL = Tool(
     name="throw",
-    summary="Throw, heave and vertical separation along every trace from the DEM.",
+    summary="Throw, heave and vertical separation along every trace: from the DEM, throw points or attributes.",
     run=run,
     requires=("prepare",),
-    inputs=("faults", "dem"),
+    check=check,
+    inputs=("faults",),
+    optional_inputs=("dem", "throw_points"),
     params=(
+        Param(
+            "source",
+            str,
+            "auto",
+            "Where throws come from: the DEM, the traces' max_throw_m / displacement_m attributes, or a "
+            "layer of throw points; auto = the DEM where given, else throw points, else attributes.",
+            choices=SOURCES,
+        ),
+        Param(
+            "point_tolerance_m",
+            float,
+            200.0,
+            "Throw points farther than this from every trace are not used (our default: field positions and "
+            "mapped traces agree to tens of metres).",
+            unit="m",
+            min=0.0,
+            min_exclusive=True,
+        ),
+        Param(
+            "point_join_field",
+            str,
+            None,
+            "Field present on both the traces and the throw points: each point goes to the nearest trace with "
+            "its value (no tolerance). Unset: the nearest trace within point_tolerance_m.",
+            nullable=True,
+        ),
+        Param(
+            "point_throw_rel_err",
+            float,
+            0.1,
+            "1-sigma error of a point throw given without throw_err_m or range, as a fraction of the throw "
+            "(our default).",
+            min=0.0,
+            min_exclusive=True,
+            max=1.0,
+        ),
         Param(
             "station_spacing_m",
             float,
@@ -346,6 +499,10 @@ TOOL = Tool(
         "outside, truncated, nodata, poor_fit). Per fault: maximum throw of the robustly smoothed along-strike "
         "profile (Hampel filter, local quadratic regression) with its error and position, mean throw, heave "
         "integral, tip gradients; the down-thrown side is inferred from the DEM where no dip direction is given. "
-        "Throw minima between the segments of linked systems are written as linkage zones."
+        "Throw minima between the segments of linked systems are written as linkage zones. Without a DEM "
+        "(source): per-fault max_throw_m (or displacement_m x sin dip) attributes, with a parabolic profile "
+        "assumed for the mean throw and heave; or throw points snapped to the traces, whose along-strike "
+        "profiles are summarised as the DEM stations are. throw_source on faults and stations says which. "
+        "See docs/without_dem.md."
     ),
 )

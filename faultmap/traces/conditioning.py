@@ -18,6 +18,7 @@ from scipy.sparse.csgraph import connected_components
 from faultmap.errors import GeometryError, InputError, ParameterError
 from faultmap.numerics.directions import axial_mean_deg, segment_azimuths
 from faultmap.registry import DEFAULT_FIELDS
+from faultmap.traces.attributes import ParsedValues, parse_values, sigma_from_range
 
 __all__ = [
     "condition_traces",
@@ -100,6 +101,7 @@ def condition_traces(
     fields: dict | None = None,
     dip_deg: float = 60.0,
     where: str = "faults",
+    azimuth_reference: str = "true",
 ) -> tuple[gpd.GeoDataFrame, list[str]]:
     """Clean traces and derive the per-fault attributes of the conventions.
 
@@ -115,6 +117,10 @@ def condition_traces(
         Andersonian common practice).
     where : str
         File and layer, for messages.
+    azimuth_reference : {'true', 'grid'}
+        North of the ``dip_dir`` attribute: ``true`` (field and database azimuths; turned into grid
+        azimuths of the working CRS with the meridian convergence at each trace, recorded in
+        ``dip_dir_convergence_deg``) or ``grid`` (used as given).
 
     Returns
     -------
@@ -204,30 +210,39 @@ def condition_traces(
         name = f.get(key)
         return parts[name] if name and name in parts.columns else None
 
-    dip_raw = col("dip")
-    dip = np.full(n, np.nan) if dip_raw is None else _numeric(dip_raw, field=f["dip"], ids=ids, where=where)
-    bad = ~np.isnan(dip) & ~((dip > 0) & (dip <= 90))
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
-        raise InputError(
-            f"{where}: feature {ids[i]}: dip {dip[i]:g} is outside 0-90 degrees (exclusive of 0); fix field '{f['dip']}'."
-        )
+    dip_p = _parsed(col("dip"), n, field=f["dip"], ids=ids, where=where, lower=0.0, upper=90.0, lower_inclusive=False,
+                    label="dip")
+    dip = dip_p.preferred.copy()
     dip_source = np.where(np.isnan(dip), "default", "attribute")
     if np.isnan(dip).any():
         warnings.append(f"{where}: default dip {dip_deg:g} deg used for {int(np.isnan(dip).sum())} of {n} traces.")
     dip = np.where(np.isnan(dip), dip_deg, dip)
 
-    dd_raw = col("dip_dir")
-    dd = np.full(n, np.nan) if dd_raw is None else _numeric(dd_raw, field=f["dip_dir"], ids=ids, where=where)
-    bad = ~np.isnan(dd) & ~((dd >= 0) & (dd <= 360))
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
-        raise InputError(f"{where}: feature {ids[i]}: dip direction {dd[i]:g} is outside 0-360; fix field '{f['dip_dir']}'.")
-    dd = dd % 360.0
+    dd_p = _parsed(col("dip_dir"), n, field=f["dip_dir"], ids=ids, where=where, compass=True, lower=0.0, upper=360.0,
+                   label="dip direction")
+    dd = dd_p.preferred % 360.0
+    if np.any(dd_p.has_range):
+        i = int(np.flatnonzero(dd_p.has_range)[0])
+        raise InputError(
+            f"{where}: feature {ids[i]}: field '{f['dip_dir']}' is {col('dip_dir').iloc[i]!r}: a dip direction is one "
+            "azimuth or compass letters, not a range; fix the attribute."
+        )
     dd_source = np.where(np.isnan(dd), "unknown", "attribute")
+    convergence = np.full(n, np.nan)
+    if azimuth_reference not in ("true", "grid"):
+        raise ParameterError(f"azimuth_reference must be 'true' or 'grid', got {azimuth_reference!r}.")
+    given_dd = ~np.isnan(dd)
+    if azimuth_reference == "true" and given_dd.any() and gdf.crs is not None:
+        from faultmap.crs import meridian_convergence_deg, true_to_grid_azimuth
 
-    age_raw = col("surface_age_ka")
-    age = np.full(n, np.nan) if age_raw is None else _numeric(age_raw, field=f["surface_age_ka"], ids=ids, where=where)
+        # at the centre of each trace's bounds (the same bits whatever the digitising direction)
+        b = shapely.bounds(lines[given_dd])
+        convergence[given_dd] = meridian_convergence_deg(gdf.crs, 0.5 * (b[:, 0] + b[:, 2]), 0.5 * (b[:, 1] + b[:, 3]))
+        dd[given_dd] = true_to_grid_azimuth(dd[given_dd], convergence[given_dd])
+
+    age_p = _parsed(col("surface_age_ka"), n, field=f["surface_age_ka"], ids=ids, where=where, label="age, ka")
+    age = age_p.preferred
+    extra = _database_columns(col, f, n, ids=ids, where=where, dip=dip_p, age=age_p)
     act_raw = col("active")
     active = np.zeros(n, dtype=bool) if act_raw is None else _bool(act_raw, field=f["active"], ids=ids, where=where)
     name_raw = col("name")
@@ -276,11 +291,57 @@ def condition_traces(
             "dip_dir_source": dd_source,
             "active": active,
             "surface_age_ka": age,
+            **extra,
         },
         geometry=lines,
         crs=gdf.crs,
     )
+    if azimuth_reference == "true" and given_dd.any() and gdf.crs is not None:
+        out["dip_dir_convergence_deg"] = convergence
     return out, warnings
+
+
+def _parsed(series, n: int, **kw) -> ParsedValues:
+    """Parse an optional attribute column (all NaN when the column is absent)."""
+    if series is None:
+        nan = np.full(n, np.nan)
+        return ParsedValues(nan, nan.copy(), nan.copy(), np.full(n, "missing", dtype=object))
+    return parse_values(series, **kw)
+
+
+def _database_columns(col, f: dict, n: int, *, ids, where: str, dip: ParsedValues, age: ParsedValues) -> dict:
+    """Fault-database attributes kept on the faults layer: spreads of dip and age, given throws and slip rates.
+
+    Only columns the input holds are returned (a layer without them keeps today's columns). A range or
+    triple becomes a 1-sigma error of a quarter of its width (:func:`faultmap.traces.attributes.sigma_from_range`).
+    """
+    out: dict[str, np.ndarray] = {}
+    if dip.has_range.any():
+        out["dip_min_deg"] = np.where(np.isfinite(dip.min), dip.min, np.nan)
+        out["dip_max_deg"] = np.where(np.isfinite(dip.max), dip.max, np.nan)
+    if age.has_range.any():
+        out["surface_age_err_ka"] = sigma_from_range(age)
+    for key, given, err_key in (
+        ("max_throw_m", "given_max_throw_m", "max_throw_err_m"),
+        ("displacement_m", "given_displacement_m", None),
+    ):
+        raw = col(key)
+        if raw is None:
+            continue
+        v = parse_values(raw, field=f[key], ids=ids, where=where, lower=0.0)
+        out[given] = v.preferred
+        err = sigma_from_range(v)
+        if err_key is not None and col(err_key) is not None:
+            e = parse_values(col(err_key), field=f[err_key], ids=ids, where=where, lower=0.0).preferred
+            err = np.where(np.isfinite(e), e, err)
+        out[given[:-2] + "_err_m"] = err
+    raw = col("slip_rate_mm_yr")
+    if raw is not None:
+        v = parse_values(raw, field=f["slip_rate_mm_yr"], ids=ids, where=where, lower=0.0)
+        out["slip_rate_mm_yr"] = v.preferred
+        out["slip_rate_min_mm_yr"] = v.min
+        out["slip_rate_max_mm_yr"] = v.max
+    return out
 
 
 def censor_flags(

@@ -26,9 +26,18 @@ def run(ctx, p: dict) -> None:
 
     raw = ctx.raw_faults
     where = raw.attrs.get("source", "faults")
-    faults, warns = condition_traces(raw, fields=ctx.fields, dip_deg=p["dip_deg"], where=where)
+    faults, warns = condition_traces(
+        raw, fields=ctx.fields, dip_deg=p["dip_deg"], where=where, azimuth_reference=p["azimuth_reference"]
+    )
     for w in warns:
         ctx.warn(w)
+    if "dip_dir_convergence_deg" in faults.columns:
+        g = faults["dip_dir_convergence_deg"].to_numpy(dtype=float)
+        g = g[np.isfinite(g)]
+        ctx.record(
+            "meridian_convergence_deg",
+            f"{g.min():.4f} to {g.max():.4f} (subtracted from {g.size} true dip directions to give grid azimuths)",
+        )
     lines = faults.geometry.to_numpy()
     dem = ctx.dem
     tol = p["censor_tolerance_m"]
@@ -94,6 +103,12 @@ TOOL = Tool(
     optional_inputs=("dem", "study_area"),
     params=(
         Param(
+            "azimuth_reference", str, "true",
+            "North of the dip_dir attribute: 'true' (field and database azimuths; turned into grid azimuths of "
+            "the working CRS with the meridian convergence at each trace) or 'grid' (used as given).",
+            choices=("true", "grid"),
+        ),
+        Param(
             "dip_deg", float, 60.0,
             "Dip used where the dip attribute is missing (Andersonian normal fault, common practice).",
             unit="deg", min=0.0, max=90.0, min_exclusive=True,
@@ -132,7 +147,7 @@ TOOL = Tool(
         "Explodes multi-part lines, drops empty and zero-length parts (warning), rejects points and polygons, "
         "drops Z/M, removes exact duplicates, computes length in the working CRS, right-hand-rule strike "
         "(length-weighted axial mean of segment azimuths, Mardia & Jupp 2000), dip and dip direction with "
-        "their sources, a stable fault_id, censoring at the mapped area's edges, and linked systems: pairs and short chains of along-strike segments, each tip linked to at most one mutual nearest partner within link_distance_m and link_length_ratio of the shorter trace, at most max_segments traces per system. "
+        "their sources (dip_dir from true north turned into grid azimuths with the meridian convergence unless azimuth_reference is 'grid'; numbers may be ranges '50-70', triples '(50,60,70)' or, for dip_dir, compass letters), a stable fault_id, censoring at the mapped area's edges, and linked systems: pairs and short chains of along-strike segments, each tip linked to at most one mutual nearest partner within link_distance_m and link_length_ratio of the shorter trace, at most max_segments traces per system. "
         "Traces are stored oriented along their strike, so digitising direction never matters."
     ),
 )
