@@ -93,19 +93,43 @@ def one_fault(x, y0, y1, *, dip=60.0, dip_dir=90.0, fid=1):
 # ---------------------------------------------------------------------------
 # Caskey (1995) relation
 # ---------------------------------------------------------------------------
+def _section_separation(throw, dip, theta):
+    """Vertical separation and heave by plane geometry (built here, not with faultmap's formula).
+
+    Cross-section normal to strike: the ground surface z = -tan(theta) x descends towards the
+    hanging wall (+x) at theta; the fault dips towards +x through the origin. The hanging wall
+    slips down the fault until the origin's point is at depth -throw: its horizontal move (the
+    heave) is where the fault line meets z = -throw (shapely). Footwall surface points, and the
+    same points moved by (heave, -throw), are fitted with straight lines (numpy.polyfit); the
+    vertical separation is the gap between the two lines at the fault (Caskey 1995, common practice).
+    """
+    far = 1e4
+    fault = shapely.LineString([(0.0, 0.0), (far, -far * math.tan(math.radians(dip)))])
+    heave = fault.intersection(shapely.LineString([(-far, -throw), (far, -throw)])).x
+    x = np.linspace(-500.0, -50.0, 10)
+    z = -math.tan(math.radians(theta)) * x
+    fw = np.polyfit(x, z, 1)
+    hw = np.polyfit(x + heave, z - throw, 1)
+    return float(np.polyval(fw, 0.0) - np.polyval(hw, 0.0)), heave
+
+
 def test_caskey_check_values():
-    # Caskey (1995), J. Struct. Geol. 17; check values (derived from the geometry):
-    # T 10 m, dip 60, theta 10 -> VS 8.9820 m; surface sloping the other way -> 11.0180 m
-    assert separation_from_throw(10.0, dip_deg=60.0, surface_slope_deg=10.0) == pytest.approx(
-        8.9820, abs=5e-5
-    )
-    assert separation_from_throw(10.0, dip_deg=60.0, surface_slope_deg=-10.0) == pytest.approx(
-        11.0180, abs=5e-5
-    )
-    # the inverse recovers the throw (analytic)
+    # Caskey (1995), J. Struct. Geol. 17: T 10 m, dip 60, theta 10 -> VS 8.9820 m; surface sloping
+    # the other way -> 11.0180 m, both by the section geometry above (a different route).
+    assert _section_separation(10.0, 60.0, 10.0)[0] == pytest.approx(8.9820, abs=5e-5)
+    assert _section_separation(10.0, 60.0, -10.0)[0] == pytest.approx(11.0180, abs=5e-5)
     for th in (-20.0, -10.0, 0.0, 10.0, 25.0):
-        vs = separation_from_throw(10.0, dip_deg=60.0, surface_slope_deg=th)
-        assert throw_from_separation(vs, dip_deg=60.0, surface_slope_deg=th) == pytest.approx(10.0, rel=1e-12)
+        for dip in (30.0, 60.0, 85.0):
+            if dip <= th:
+                continue
+            ref, _ = _section_separation(10.0, dip, th)
+            assert separation_from_throw(10.0, dip_deg=dip, surface_slope_deg=th) == pytest.approx(
+                ref, rel=1e-9
+            )
+            # and the inverse recovers the throw from the geometric separation
+            assert throw_from_separation(ref, dip_deg=dip, surface_slope_deg=th) == pytest.approx(
+                10.0, rel=1e-9
+            )
 
 
 def test_finalise_applies_caskey_on_the_hanging_wall_side_and_leaves_its_input():
@@ -118,8 +142,9 @@ def test_finalise_applies_caskey_on_the_hanging_wall_side_and_leaves_its_input()
     from faultmap.throw.step import finalise_stations
 
     n = 4
-    raw = pd.DataFrame({"fault_id": [1, 1, 2, 2], "dist_m": [0.0, 10.0, 0.0, 10.0], "x": 0.0, "y": 0.0,
-                        "nx": 1.0, "ny": 0.0})
+    raw = pd.DataFrame(
+        {"fault_id": [1, 1, 2, 2], "dist_m": [0.0, 10.0, 0.0, 10.0], "x": 0.0, "y": 0.0, "nx": 1.0, "ny": 0.0}
+    )
     for k in RAW_COLUMNS:
         raw[k] = np.zeros(n)
     raw["geo_status"] = np.array(["", "", "", "nodata"], dtype=object)
@@ -135,7 +160,7 @@ def test_finalise_applies_caskey_on_the_hanging_wall_side_and_leaves_its_input()
     faults = pd.DataFrame({"fault_id": [1, 2], "dip_deg": [60.0, 60.0]})
     out = finalise_stations(raw, faults, {1: 1.0, 2: -1.0})
     assert out["throw_m"].to_numpy()[:3] == pytest.approx([10.0, 10.0, 10.0], abs=1e-3)
-    assert out["heave_m"].to_numpy()[:3] == pytest.approx(10.0 / np.tan(np.radians(60.0)), abs=1e-3)
+    assert out["heave_m"].to_numpy()[:3] == pytest.approx(_section_separation(10.0, 60.0, 10.0)[1], abs=1e-3)
     assert out["surface_slope_deg"].to_numpy()[:3] == pytest.approx([10.0, -10.0, 10.0], abs=1e-9)
     assert list(out["status"]) == ["ok", "ok", "ok", "nodata"] and np.isnan(out["throw_m"].iloc[3])
     assert out["profile_azimuth_deg"].to_numpy() == pytest.approx([90.0, 90.0, 270.0, 270.0])
@@ -280,12 +305,12 @@ def test_analytic_scarp_throw(tmp_path, dip, theta, noise):
     mx, err = res.faults[["max_throw_m", "max_throw_err_m"]].iloc[0]
     assert abs(mx - T) <= max(0.02 * T, 3.0 * err)
     assert err < 0.05 * T
-    # vertical separation: Caskey (1995) VS = T (1 - tan(theta)/tan(dip)); derived check values
-    vs_expected = separation_from_throw(T, dip_deg=dip, surface_slope_deg=theta)
+    # vertical separation (Caskey 1995) by the section geometry, not faultmap's formula
+    vs_expected, heave_ref = _section_separation(T, dip, theta)
     assert np.median(st.loc[ok, "vert_sep_m"]) == pytest.approx(vs_expected, rel=0.02 if noise else 0.002)
     assert np.median(st.loc[ok, "surface_slope_deg"]) == pytest.approx(theta, abs=0.3)
-    # heave = throw / tan(dip) (geometry)
-    assert np.allclose(st.loc[ok, "heave_m"], st.loc[ok, "throw_m"] / math.tan(math.radians(dip)))
+    # heave of each station: the section's heave for that station's throw (it scales with the throw)
+    assert np.allclose(st.loc[ok, "heave_m"], st.loc[ok, "throw_m"] * heave_ref / T)
     if noise:
         # a standard error describes the scatter: station throws scatter about as their errors say
         # (statistics; a factor of 2 either way allows for the few stations)
@@ -564,8 +589,8 @@ def test_surface_as_steep_as_fault_is_poor_fit(tmp_path):
     st = measure_throw(one_fault(1000.0, 100.0, 900.0, dip=30.0), dem).stations
     assert (st["status"] == "poor_fit").all()
     assert st["throw_m"].isna().all()
-    # the separation itself is still measured (Caskey: VS = T (1 - tan 25 / tan 30))
-    vs = separation_from_throw(10.0, dip_deg=30.0, surface_slope_deg=25.0)
+    # the separation itself is still measured (Caskey 1995; by the section geometry)
+    vs, _ = _section_separation(10.0, 30.0, 25.0)
     assert np.median(st["vert_sep_m"]) == pytest.approx(vs, rel=0.02)
 
 
@@ -744,15 +769,28 @@ def test_first_run_compile_is_announced(tmp_path, monkeypatch):
     from faultmap.synthetic import build_dem, parallel_faults
     from faultmap.throw import step
 
-    f = parallel_faults(1, spacing_m=900.0, length_m=[1600.0], throw_m=[10.0], dip_dir_deg=90.0,
-                        centre_xy=(1000.0, 1000.0), crs=CRS)
-    z, _, _ = build_dem(f, origin_xy=(0.0, 2000.0), pixel_size_m=PX, shape=(200, 200), scarp_width_m=20.0, seed=2)
+    f = parallel_faults(
+        1,
+        spacing_m=900.0,
+        length_m=[1600.0],
+        throw_m=[10.0],
+        dip_dir_deg=90.0,
+        centre_xy=(1000.0, 1000.0),
+        crs=CRS,
+    )
+    z, _, _ = build_dem(
+        f, origin_xy=(0.0, 2000.0), pixel_size_m=PX, shape=(200, 200), scarp_width_m=20.0, seed=2
+    )
     tif = write_tif(tmp_path / "dem.tif", z, y0=2000.0)
     f[["geometry"]].to_file(tmp_path / "traces.gpkg", layer="traces")
     said = []
     monkeypatch.setattr(step, "compiled_on_disk", lambda: False)
-    run_tools(["throw"], inputs={"faults": tmp_path / "traces.gpkg", "dem": tif}, out=tmp_path / "o.gpkg",
-              echo=said.append)
+    run_tools(
+        ["throw"],
+        inputs={"faults": tmp_path / "traces.gpkg", "dem": tif},
+        out=tmp_path / "o.gpkg",
+        echo=said.append,
+    )
     assert any("compiling faultmap's kernels" in m for m in said)
     monkeypatch.undo()
     if jit.ENABLED:
