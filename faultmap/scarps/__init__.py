@@ -25,6 +25,10 @@ _EXPORTS = {
     "kappa_draws": "ages",
     "calibrated_kappa_draws": "ages",
     "morphologic_ages": "ages",
+    "fault_ages": "ages",
+    "AGE_COLUMNS": "ages",
+    "STATION_KT_COLUMNS": "fault_degradation",
+    "FAULT_KT_COLUMNS": "fault_degradation",
     "degradation_figure": "figures",
 }
 __all__ = list(_EXPORTS)

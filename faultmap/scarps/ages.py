@@ -15,7 +15,7 @@ import numpy as np
 
 from faultmap.errors import InputError, ParameterError
 
-__all__ = ["PUBLISHED_KAPPA", "kappa_draws", "calibrated_kappa_draws", "morphologic_ages"]
+__all__ = ["PUBLISHED_KAPPA", "AGE_COLUMNS", "kappa_draws", "calibrated_kappa_draws", "morphologic_ages", "fault_ages"]
 
 #: Published mass diffusivities of scarps in unconsolidated deposits (regional: a value holds for the
 #: climate and materials where it was calibrated; all recalled, from memory, to be checked).
@@ -140,3 +140,82 @@ def morphologic_ages(kt_m2, kt_err_m2, kappa_draws_m2_kyr, *, bound_m2=None, see
         hasb = np.isfinite(b) & ~good
         out["age_max_ka"][hasb] = b[hasb] / np.percentile(kap, 16.0)
     return out
+
+
+#: Columns :func:`fault_ages` adds to the faults.
+AGE_COLUMNS = ("morph_age_ka", "morph_age_p16_ka", "morph_age_p84_ka", "morph_age_err_ka", "morph_age_max_ka",
+               "morph_age_basis")
+
+
+def fault_ages(faults, *, kappa_m2_kyr=None, kappa_range_m2_kyr=None, calibration_fault_id=None,
+               n_draws: int = 4000, seed: int = 0):
+    """Morphologic ages of every fault with a kappa t, from a regional kappa or a dated scarp.
+
+    Parameters
+    ----------
+    faults : pandas.DataFrame
+        ``fault_id``, ``kappa_t_m2``, ``kappa_t_err_m2``, ``kappa_t_flag``,
+        ``kappa_t_bound_m2`` (:func:`faultmap.scarps.fault_degradation.summarise_degradation`);
+        for a calibration, ``surface_age_ka`` (and optionally ``surface_age_err_ka``) of that fault.
+    kappa_m2_kyr : float, optional
+        Regional kappa, m^2/kyr.
+    kappa_range_m2_kyr : (float, float), optional
+        Its range (drawn log-uniformly).
+    calibration_fault_id : int, optional
+        A dated fault whose kappa t and ``surface_age_ka`` calibrate kappa (used when
+        ``kappa_m2_kyr`` is not given).
+    n_draws, seed : int
+
+    Returns
+    -------
+    faults : pandas.DataFrame
+        A copy with :data:`AGE_COLUMNS` (ka; ``morph_age_basis`` says
+        ``morphologic, regional kappa ...`` or ``morphologic, kappa calibrated on fault N``),
+        or the input unchanged when neither kappa nor a calibration is given.
+    record : dict
+        The kappa used (median and 16-84 % range, m^2/kyr) and its basis, for ``run_info``.
+    """
+    if kappa_m2_kyr is None and calibration_fault_id is None:
+        return faults, {}
+    f = faults.copy()
+    if kappa_m2_kyr is not None:
+        kap = kappa_draws(kappa_m2_kyr, kappa_range_m2_kyr, n_draws=n_draws, seed=seed)
+        rng = "" if kappa_range_m2_kyr is None else f" ({kappa_range_m2_kyr[0]:g}-{kappa_range_m2_kyr[1]:g})"
+        basis = f"morphologic, regional kappa {float(kappa_m2_kyr):g}{rng} m2/kyr"
+    else:
+        ids = f["fault_id"].to_numpy()
+        hit = np.flatnonzero(ids == int(calibration_fault_id))
+        if hit.size == 0:
+            raise InputError(
+                f"faults: kappa_calibration_fault_id {calibration_fault_id} is not a fault_id of the layer; "
+                "give the id of a dated fault."
+            )
+        r = f.iloc[int(hit[0])]
+        if str(r.get("kappa_t_flag", "none")) != "measured":
+            raise InputError(
+                f"faults: fault {calibration_fault_id} (the kappa calibration) has no measured kappa t "
+                f"(kappa_t_flag {r.get('kappa_t_flag', 'none')}); choose a dated fault with a resolved scarp."
+            )
+        age = r.get("surface_age_ka", np.nan)
+        aerr = r.get("surface_age_err_ka", np.nan)
+        kap = calibrated_kappa_draws(
+            r["kappa_t_m2"], r["kappa_t_err_m2"], np.nan if age is None else float(age),
+            np.nan if aerr is None else float(aerr), n_draws=n_draws, seed=seed,
+        )
+        basis = f"morphologic, kappa calibrated on fault {int(calibration_fault_id)}"
+    measured = f["kappa_t_flag"].to_numpy(dtype=object) == "measured"
+    upper = f["kappa_t_flag"].to_numpy(dtype=object) == "upper_bound"
+    a = morphologic_ages(
+        np.where(measured, f["kappa_t_m2"].to_numpy(dtype=float), np.nan),
+        f["kappa_t_err_m2"].to_numpy(dtype=float),
+        kap,
+        bound_m2=np.where(upper, f["kappa_t_bound_m2"].to_numpy(dtype=float), np.nan),
+        seed=seed + 1,
+    )
+    for k in ("age_ka", "age_p16_ka", "age_p84_ka", "age_err_ka", "age_max_ka"):
+        f["morph_" + k] = a[k]
+    has = np.isfinite(a["age_ka"]) | np.isfinite(a["age_max_ka"])
+    f["morph_age_basis"] = np.where(has, basis, "").astype(object)
+    q = np.percentile(kap, [16.0, 50.0, 84.0])
+    rec = {"kappa_m2_kyr_used": f"{q[1]:.3g} (16-84 %: {q[0]:.3g}-{q[2]:.3g}); {basis}"}
+    return f, rec

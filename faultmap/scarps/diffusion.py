@@ -158,8 +158,12 @@ def _jacobian(X, F, dF, u, p):
 
 def _tukey(res, W0, tuning):
     """Tukey biweights from residuals with a MAD scale per row (zero where W0 is zero)."""
-    r = np.where(W0 > 0, np.abs(res), np.nan)
-    mad = 1.4826 * np.nanmedian(r, axis=1)
+    r = np.where(W0 > 0, np.abs(res), np.inf)
+    n = (W0 > 0).sum(1)
+    rs = np.sort(r, axis=1)  # the median of each row's valid residuals (infinities sort last)
+    lo = rs[np.arange(r.shape[0]), np.maximum((n - 1) // 2, 0)]
+    hi_ = rs[np.arange(r.shape[0]), np.maximum(n // 2, 0)]
+    mad = 1.4826 * 0.5 * (lo + hi_)
     mad = np.where(np.isfinite(mad) & (mad > 0), mad, 1e-6)
     q = r / (tuning * mad[:, None])
     w = np.where(q < 1.0, (1.0 - q * q) ** 2, 0.0)
@@ -172,7 +176,7 @@ def fit_diffusion_profiles(
     *,
     s0_m,
     n_events: int = 1,
-    iterations: int = 12,
+    iterations: int = 8,
     robust: bool = True,
     tuning: float = 4.685,
     x0_max_m=None,
@@ -188,7 +192,7 @@ def fit_diffusion_profiles(
         Elevations, m (NaN = no sample).
     s0_m : array_like, shape (m,)
         First guess of the scarp's width 2 sqrt(kappa t), m (candidates at
-        0.35 to 3 times it are tried first).
+        0.4, 1 and 2.5 times it are tried first).
     n_events : int
         Events the offset grew in (:func:`scarp_shape`).
     iterations : int
@@ -227,15 +231,15 @@ def fit_diffusion_profiles(
     # reference level per row keeps the sums well conditioned
     ref = np.where(W0.sum(1) > 0, Zf.sum(1) / np.maximum(W0.sum(1), 1), 0.0)
     Zf = (Zf - ref[:, None]) * W0
-    half = 0.5 * (np.nanmax(np.where(W0 > 0, X, np.nan), 1) - np.nanmin(np.where(W0 > 0, X, np.nan), 1))
-    half = np.where(np.isfinite(half), half, 1.0)
+    half = 0.5 * (np.where(W0 > 0, X, -np.inf).max(1) - np.where(W0 > 0, X, np.inf).min(1))
+    half = np.where(np.isfinite(half) & (half > 0), half, 1.0)
     x0max = 0.25 * half if x0_max_m is None else np.broadcast_to(np.asarray(x0_max_m, float), (m,))
     s_lo, s_hi = s_bounds_m
     s0 = np.clip(np.asarray(s0_m, dtype=float) * np.ones(m), s_lo, s_hi)
     # --- candidate widths, linear parameters in closed form
     best_ssr = np.full(m, np.inf)
     best = np.zeros((m, 5))
-    for f in (0.35, 0.6, 1.0, 1.7, 3.0):
+    for f in (0.4, 1.0, 2.5):
         s = np.clip(s0 * f, s_lo, s_hi)
         E, _ = scarp_shape(X / s[:, None], n_events=n_events)
         coef, ssr = _lin_solve(W0, X, Zf, E)
@@ -254,7 +258,7 @@ def fit_diffusion_profiles(
         return F, dF, u, r
 
     F, dF, u, r = evaluate(p)
-    reweight = {3, 7} if robust else set()
+    reweight = {2, 5} if robust else set()
     for it in range(int(iterations)):
         if it in reweight:
             W, _ = _tukey(r, W0, tuning)

@@ -127,7 +127,8 @@ def station_degradation(Z, fits, *, step_m, pixel_size_m, n_events: int = 1) -> 
     wside = np.minimum(np.floor(hi), np.maximum(3.0 * w, w + 20.0))
     wside = np.clip(wside, 0, K).astype(np.int64)
     Wst = np.maximum(wside[:m], wside[m:])
-    noise = np.sqrt(np.nanmax(np.c_[np.asarray(fits["rms"], float)[:m], np.asarray(fits["rms"], float)[m:]], 1) ** 2)
+    rms = np.asarray(fits["rms"], float)
+    noise = np.fmax(rms[:m], rms[m:])  # the noisier side's far-field misfit (NaN only where both are)
     use = (wside[:m] >= 5) & (wside[m:] >= 5)
     idx = np.flatnonzero(use)
     for grp in _window_bins(Wst[idx]) if idx.size else []:

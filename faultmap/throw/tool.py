@@ -12,10 +12,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from faultmap.errors import InputError
+from faultmap.errors import InputError, ParameterError
 from faultmap.registry import Param, Tool
 
-_FIGURES = ("throw_map.png", "throw_profiles.png", "throw_systems.png")
+_FIGURES = ("throw_map.png", "throw_profiles.png", "throw_systems.png", "scarp_degradation.png")
 
 #: Where throws come from (``auto``: the DEM where given, else throw points, else attributes).
 SOURCES = ("auto", "dem", "attributes", "points")
@@ -100,6 +100,8 @@ def run(ctx, p: dict) -> None:
         memory_budget_mb=p["memory_budget_mb"],
         smooth_stations=p["smooth_stations"],
         min_stations_per_fault=p["min_stations_per_fault"],
+        degradation=p["degradation"],
+        n_events=p["n_events"],
     )
     from faultmap.throw.batches import min_batches_for
 
@@ -189,6 +191,7 @@ def run(ctx, p: dict) -> None:
         np.isfinite(res.faults["max_throw_m"].to_numpy(dtype=float)), "dem", "none"
     ).astype(object)
     res.stations["throw_source"] = "dem"
+    _degradation_records(ctx, res, params, p)  # kappa t and morphologic ages (faultmap.scarps)
     ctx.faults = res.faults
     ctx.layers["throw_stations"] = res.stations
     ctx.layers["linkage_zones"] = res.linkage_zones
@@ -210,6 +213,44 @@ def run(ctx, p: dict) -> None:
             system_profiles(res.faults, res.stations, res.linkage_zones, max_systems=p["n_system_figures"]),
             "throw_systems.png",
         )
+        from faultmap.scarps.figures import degradation_figure
+
+        ctx.save_figure(
+            degradation_figure(res.faults, res.stations, pixel_size_m=params.pixel_size_m), "scarp_degradation.png"
+        )
+
+
+def _degradation_records(ctx, res, params, p) -> None:
+    """Morphologic ages when a kappa (or a dated scarp) is given; what was used goes to run_info."""
+    if not params.degradation:
+        ctx.record("degradation", "off (no kappa t fitted)")
+        return
+    from faultmap.scarps.ages import fault_ages
+
+    flags = res.faults["kappa_t_flag"].value_counts()
+    ctx.record("kappa_t_faults", ", ".join(f"{k} {int(v)}" for k, v in flags.items()))
+    ctx.record(
+        "kappa_t_model",
+        f"erf diffusion profile, {params.n_events} event(s); kappa t less p^2/12 = {params.pixel_size_m**2 / 12:.3g} m2 "
+        f"(bilinear interpolation); resolved when sqrt(kappa t) >= {0.5 * params.pixel_size_m:g} m (half a pixel)",
+    )
+    rng = None
+    if p["kappa_min_m2_kyr"] is not None or p["kappa_max_m2_kyr"] is not None:
+        if p["kappa_m2_kyr"] is None or p["kappa_min_m2_kyr"] is None or p["kappa_max_m2_kyr"] is None:
+            raise ParameterError(
+                "give kappa_min_m2_kyr and kappa_max_m2_kyr together, with kappa_m2_kyr (the kappa range)."
+            )
+        rng = (p["kappa_min_m2_kyr"], p["kappa_max_m2_kyr"])
+    res.faults, rec = fault_ages(
+        res.faults,
+        kappa_m2_kyr=p["kappa_m2_kyr"],
+        kappa_range_m2_kyr=rng,
+        calibration_fault_id=p["kappa_calibration_fault_id"],
+    )
+    for k, v in rec.items():
+        ctx.record(k, v)
+    if rec:
+        ctx.info("morphologic ages from kappa t: " + rec["kappa_m2_kyr_used"])
 
 
 def _run_without_dem(ctx, p: dict, source: str) -> None:
@@ -457,6 +498,60 @@ TOOL = Tool(
             "Memory for the DEM windows and sample arrays of one batch (each thread or worker runs one batch at a time).",
             unit="MB",
             min=16.0,
+        ),
+        Param(
+            "degradation",
+            bool,
+            True,
+            "Fit the diffusion form of a degraded scarp (kappa t) to every station's profile, on the samples the "
+            "throw fit already read (about doubles the time of the throw fits).",
+        ),
+        Param(
+            "n_events",
+            int,
+            1,
+            "Events each scarp grew in, for the degradation fit (equal offsets, evenly spaced in time; 1 = one event).",
+            min=1,
+            max=20,
+        ),
+        Param(
+            "kappa_m2_kyr",
+            float,
+            None,
+            "Regional mass diffusivity for morphologic ages (age = kappa t / kappa); published values are regional "
+            "(docs/methods/degradation.md); unset: no ages.",
+            unit="m2/kyr",
+            min=0.0,
+            min_exclusive=True,
+            nullable=True,
+        ),
+        Param(
+            "kappa_min_m2_kyr",
+            float,
+            None,
+            "Lower end of the kappa range (drawn log-uniformly in the age Monte Carlo); with kappa_max_m2_kyr.",
+            unit="m2/kyr",
+            min=0.0,
+            min_exclusive=True,
+            nullable=True,
+        ),
+        Param(
+            "kappa_max_m2_kyr",
+            float,
+            None,
+            "Upper end of the kappa range; with kappa_min_m2_kyr.",
+            unit="m2/kyr",
+            min=0.0,
+            min_exclusive=True,
+            nullable=True,
+        ),
+        Param(
+            "kappa_calibration_fault_id",
+            int,
+            None,
+            "A dated fault (surface_age_ka) whose kappa t calibrates kappa when kappa_m2_kyr is not given.",
+            min=1,
+            nullable=True,
         ),
         Param(
             "n_profile_figures",
