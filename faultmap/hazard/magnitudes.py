@@ -576,13 +576,11 @@ def preferred_magnitude(table: pd.DataFrame, *, rule: str = "area_mean") -> tupl
 
     Notes
     -----
-    Area relations are preferred for normal faults because they carry the
-    down-dip width (dip and seismogenic thickness) and scatter least
-    (sigma 0.24-0.25 against 0.34 for length; Wells & Coppersmith 1994).
-    The two area relations were fitted to largely the same earthquakes, so
-    their errors are treated as fully correlated: the sigma of the weighted
-    mean is the weighted mean of the sigmas (not the smaller
-    1 / sqrt(sum 1/sigma**2) of independent estimates).
+    Area relations carry the down-dip width and scatter least (sigma 0.24-0.25
+    against 0.34 for length; Wells & Coppersmith 1994). The two were fitted to
+    largely the same earthquakes, so their errors are taken as fully
+    correlated: the sigma of the weighted mean is the weighted mean of the
+    sigmas (not 1 / sqrt(sum 1/sigma**2), as for independent estimates).
     """
     if rule == "area_mean":
         w = area_rule_weights(table)
