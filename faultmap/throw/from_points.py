@@ -19,12 +19,11 @@ from faultmap.traces.attributes import parse_values, sigma_from_range
 
 __all__ = ["snap_to_traces", "point_stations", "throws_from_points"]
 
-#: Columns of ``throw_stations`` (the DEM route's, :data:`faultmap.throw.step.STATION_COLUMNS`) that a
-#: point measurement cannot give: written as NaN so both routes write one layout.
-_DEM_ONLY = (
-    "vert_sep_m", "vert_sep_err_m", "planarity_err_m", "surface_slope_deg", "scarp_width_m", "fit_rmse_m",
-    "n_fw", "n_hw", "profile_azimuth_deg", "profile_half_length_m",
-)
+#: Columns of ``throw_stations`` a point measurement gives itself (or that the summaries add); the
+#: DEM route's other columns (:data:`faultmap.throw.step.STATION_COLUMNS`) are written as NaN so both
+#: routes write one layout.
+_POINT_COLUMNS = ("fault_id", "dist_m", "throw_m", "throw_err_m", "heave_m", "status", "throw_smooth_m",
+                  "throw_smooth_err_m", "outlier")
 
 
 def snap_to_traces(points, lines, *, tolerance_m: float, point_keys=None, line_keys=None):
@@ -178,8 +177,11 @@ def point_stations(
         "offset_m": off[use],
         "source_fid": ids[use],
     })
-    for c in _DEM_ONLY:
-        st[c] = np.nan
+    from faultmap.throw.step import STATION_COLUMNS
+
+    for c in STATION_COLUMNS:
+        if c not in _POINT_COLUMNS and c not in st.columns:
+            st[c] = np.nan
     foot = shapely.line_interpolate_point(lines[li[use]], dist[use])
     order = np.lexsort((st["dist_m"].to_numpy(), st["fault_id"].to_numpy()))
     st = st.take(order).reset_index(drop=True)
