@@ -463,7 +463,9 @@ def write_demo_area(folder: str | os.PathLike[str], *, scale: float = 1.0) -> di
     -------
     dict of str to pathlib.Path
         Keys ``faults``, ``dem``, ``transects``, ``truth``,
-        ``truth_stations``, ``project``.
+        ``truth_stations``, ``project``, and for the run without a DEM
+        ``field_throws``, ``fault_database``, ``project_without_dem``
+        (:mod:`demo_area.database`).
 
     Notes
     -----
@@ -487,6 +489,9 @@ def write_demo_area(folder: str | os.PathLike[str], *, scale: float = 1.0) -> di
         "truth": folder / "truth.csv",
         "truth_stations": folder / "truth_stations.csv",
         "project": folder / "project.toml",
+        "field_throws": folder / "field_throws.gpkg",
+        "fault_database": folder / "fault_database.gpkg",
+        "project_without_dem": folder / "project_without_dem.toml",
     }
 
     dem, transform, truth = build_demo_scene(scale)
@@ -525,6 +530,21 @@ def write_demo_area(folder: str | os.PathLike[str], *, scale: float = 1.0) -> di
         tmp = _tmp_path(paths["project"])
         tmp.write_text(_PROJECT_TOML.format(name=SCENARIO_NAME), encoding="utf-8")
         _commit(tmp, paths["project"])
+
+        # the second, DEM-free run: field throws, a fault-database table and their project file
+        from demo_area.database import PROJECT_WITHOUT_DEM_TOML, demo_fault_database, demo_field_throws
+
+        layers = (
+            ("field_throws", "throws", demo_field_throws(stations, truth_df, crs=faults.crs)),
+            ("fault_database", "faults", demo_fault_database(_user_layer(faults), truth_df)),
+        )
+        for key, layer, gdf in layers:
+            tmp = _tmp_path(paths[key])
+            gdf.to_file(tmp, layer=layer, driver="GPKG", engine="pyogrio")
+            _commit(tmp, paths[key])
+        tmp = _tmp_path(paths["project_without_dem"])
+        tmp.write_text(PROJECT_WITHOUT_DEM_TOML.format(name=SCENARIO_NAME), encoding="utf-8")
+        _commit(tmp, paths["project_without_dem"])
     except OSError as exc:
         raise OutputError(f"cannot write the demo area into {folder}: {exc}; check space and permissions") from None
     return paths

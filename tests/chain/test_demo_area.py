@@ -85,7 +85,8 @@ def test_declared_grid_at_scale_one_and_bad_scale():
 
 def test_files_written_atomically(demo):
     folder, paths = demo
-    assert set(paths) == {"faults", "dem", "transects", "truth", "truth_stations", "project"}
+    assert set(paths) == {"faults", "dem", "transects", "truth", "truth_stations", "project",
+                          "field_throws", "fault_database", "project_without_dem"}
     assert all(p.exists() and p.parent == folder for p in paths.values())
     # the six files and the marker that lets a later demo replace them (nothing else: no temporaries left)
     assert sorted(p.name for p in folder.iterdir()) == sorted([*(p.name for p in paths.values()), ".faultmap_demo"])
@@ -296,9 +297,9 @@ def test_deterministic_and_scale_keeps_the_scenario(tmp_path, demo):
     assert a["truth_stations"].read_bytes() == b["truth_stations"].read_bytes()
     # The truth does not depend on the pixel count.
     assert a["truth"].read_bytes() == demo[1]["truth"].read_bytes()
-    # Rewriting into the same folder replaces the files (six and the demo marker).
+    # Rewriting into the same folder replaces the files (nine and the demo marker).
     write_demo_area(tmp_path / "a", scale=0.15)
-    assert len(list((tmp_path / "a").iterdir())) == 7
+    assert len(list((tmp_path / "a").iterdir())) == 10
 
 
 def test_scene_in_memory_matches_scenario():

@@ -157,3 +157,25 @@ def test_asking_for_a_tool_that_cannot_run_names_why(traces_only, tmp_path):
     with pytest.raises(InputError, match="throw: source 'dem' needs a DEM"):
         run_tools(["throw"], inputs={"faults": str(traces_only)}, out=tmp_path / "o.gpkg", quiet=True,
                   report=False, params={"throw": {"source": "dem"}})
+
+
+def test_demo_run_without_dem(tmp_path):
+    """The demo's second project file: field throws where measured, database throws elsewhere, no DEM."""
+    import pandas as pd
+
+    from demo_area import write_demo_area
+    from faultmap.project import run_project
+
+    paths = write_demo_area(tmp_path / "demo", scale=0.12)
+    res = run_project(paths["project_without_dem"], quiet=True)
+    info = _info(res)
+    assert info["tools"] == "prepare,throw,scaling,transect,strain,width,hazard"
+    assert info["throw.source_used"] == "points"
+    f = res.layers["faults"].merge(pd.read_csv(paths["truth"])[["name", "max_throw_m"]], on="name",
+                                   suffixes=("", "_true"))
+    src = f["throw_source"].value_counts()
+    assert src["points"] == 6 and src["attributes"] == 16
+    # points every ~1 km with 5 % noise (demo_area.database): maxima within 15 % of the scene's truth
+    pts = f[f["throw_source"] == "points"]
+    assert (np.abs(pts["max_throw_m"] - pts["max_throw_m_true"]) <= 0.15 * pts["max_throw_m_true"]).all()
+    assert (res.layers["throw_stations"]["throw_source"] == "points").all()
