@@ -91,7 +91,7 @@ def _compass(az: np.ndarray) -> np.ndarray:
 
 
 def demo_fault_database(user_layer: gpd.GeoDataFrame, truth: pd.DataFrame, *, seed: int = 12) -> gpd.GeoDataFrame:
-    """The traces with fault-database attributes (ranges, triples, compass letters from true north).
+    """Return the traces with fault-database attributes (ranges, triples, compass letters from true north).
 
     Parameters
     ----------

@@ -16,6 +16,7 @@ _EXPORTS = {
     "CAUTION": "caution",
     "HazardResult": "screening",
     "select_faults": "inputs",
+    "rates_from_field": "inputs",
     "rupture_scenarios": "scenarios",
     "slip_rate_draws": "slip_rates",
     "slip_rates": "slip_rates",

@@ -31,6 +31,10 @@ _EXPORTS = {
     "linkage_zones": "linkage",
     "system_profile": "linkage",
     "measure_throw": "step",
+    "throws_from_attributes": "from_attributes",
+    "point_stations": "from_points",
+    "snap_to_traces": "from_points",
+    "throws_from_points": "from_points",
 }
 __all__ = list(_EXPORTS)
 __getattr__, __dir__ = lazy_exports(__name__, globals(), _EXPORTS)

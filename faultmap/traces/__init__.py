@@ -16,6 +16,8 @@ _EXPORTS = {
     "censor_flags": "conditioning",
     "link_systems": "conditioning",
     "system_sizes": "conditioning",
+    "parse_values": "attributes",
+    "sigma_from_range": "attributes",
 }
 __all__ = list(_EXPORTS)
 __getattr__, __dir__ = lazy_exports(__name__, globals(), _EXPORTS)
