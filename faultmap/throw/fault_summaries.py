@@ -18,18 +18,28 @@ import shapely
 
 from faultmap.throw.smoothing import _smooth_profiles
 
-__all__ = ["summarise_faults", "MAX_THROW_STATION_SHARE", "MAX_THROW_MODEL_REL_ERR"]
+__all__ = [
+    "summarise_faults",
+    "MAX_THROW_STATION_SHARE",
+    "MAX_THROW_MODEL_REL_ERR",
+    "MAX_THROW_SAMPLING_SHARE",
+]
 
 #: Share of a fault's typical (median) station throw error that smoothing cannot average away:
 #: neighbouring stations share relief, far-field surfaces and DEM errors, so their errors are
 #: correlated along strike. Calibrated on synthetic scenes (docs/methods/throw.md, "Error of the
 #: maximum throw").
-MAX_THROW_STATION_SHARE = 0.5
+MAX_THROW_STATION_SHARE = 0.75
 
 #: Relative model error of a maximum throw: what a straight-line far-field surface cannot
 #: represent (flexure and tapering neighbours within the profile, scarp degradation).
 #: Calibrated on synthetic scenes with several pixel sizes, noise, roughness and profile shapes.
-MAX_THROW_MODEL_REL_ERR = 0.03
+MAX_THROW_MODEL_REL_ERR = 0.025
+
+#: Sampling error of a peak between stations: the apex may lie anywhere up to a station from the
+#: highest one, so the maximum may miss up to the smoothed throw change to the farther-dropping
+#: neighbour; taken as uniform on [0, change], its standard deviation is change / sqrt(12).
+MAX_THROW_SAMPLING_SHARE = 1.0 / np.sqrt(12.0)
 
 
 def _vertex_between_stations(i, g, d, T, se, usable, coef, key):
@@ -84,6 +94,18 @@ def _sorted_by_group(group, d) -> bool:
         return True
     dg = np.diff(group)
     return bool(np.all(dg >= 0) and np.all((dg > 0) | (np.diff(d) >= 0)))
+
+
+def _peak_drop(i, g, Ts, usable):
+    """Largest change of the smoothed throw from stations ``i`` to a usable neighbour of the same fault."""
+    n = Ts.size
+    out = np.zeros(i.size)
+    for j in (i - 1, i + 1):
+        jc = np.clip(j, 0, max(n - 1, 0))
+        has = (j >= 0) & (j < n) & (g[jc] == g[i]) & usable[jc]
+        dv = np.abs(Ts[i] - Ts[jc])
+        out = np.where(has & np.isfinite(dv), np.maximum(out, dv), out)
+    return out
 
 
 def _group_median(group, v, n_groups):
@@ -156,9 +178,11 @@ def summarise_faults(
     isolated outliers, so one noisy station cannot make the maximum. Its
     error is the larger of the propagated station errors and the local
     scatter about the smooth curve (``max_throw_fit_err_m``); the reported
-    ``max_throw_err_m`` adds in quadrature half the fault's median station
+    ``max_throw_err_m`` adds in quadrature 0.75 of the fault's median station
     error (station errors are correlated along strike, so smoothing cannot
-    average them away) and 3 % of the maximum (model error), a rule
+    average them away), 2.5 % of the maximum (model error) and the sampling
+    error of a peak between stations (the larger smoothed-throw change to a
+    neighbour over sqrt(12)), a rule
     calibrated on synthetic scenes (``docs/methods/throw.md``). Mean throw and the heave integral
     integrate the piecewise-linear profile through the usable stations,
     tapering to zero at both tips (displacement vanishes at a fault tip;
@@ -223,10 +247,13 @@ def summarise_faults(
     # the calibrated error of the maximum: the smoothed profile's own error, the share of the
     # station errors correlated along strike, and the relative model error, in quadrature
     st_err = _group_median(g[ok & ~outl], se[ok & ~outl], nF)
+    drop = np.zeros(nF)
+    drop[g[bi]] = _peak_drop(bi, g, Ts, ok & ~outl)
     mx_err = np.sqrt(
         mx_fit_err**2
         + (MAX_THROW_STATION_SHARE * np.nan_to_num(st_err)) ** 2
         + (MAX_THROW_MODEL_REL_ERR * mx) ** 2
+        + (MAX_THROW_SAMPLING_SHARE * drop) ** 2
     )
     mx_d[g[bi]] = dpos
     n_ok = np.bincount(g[ok], minlength=nF)
