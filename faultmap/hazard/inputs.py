@@ -94,6 +94,31 @@ def _selected(
     return sel, sel["fault_id"].to_numpy().astype(int), warns
 
 
+def morphologic_age_fallback(sel: pd.DataFrame) -> tuple[pd.DataFrame, list[str]]:
+    """Fill a missing ``surface_age_ka`` with the scarp's morphologic age, flagged in ``age_source``.
+
+    Where ``surface_age_ka`` is missing and the throw tool gave a morphologic age
+    (``morph_age_ka``, ``morph_age_err_ka``: kappa t over a regional or calibrated kappa,
+    :mod:`faultmap.scarps`), that age and its error are used; ``age_source`` says ``given``,
+    ``morphologic`` or ``none``. Returns a copy and a warning naming the faults.
+    """
+    out = sel.copy()
+    age = _col(out, "surface_age_ka")
+    morph = _col(out, "morph_age_ka")
+    use = ~np.isfinite(age) & np.isfinite(morph) & (morph > 0)
+    out["age_source"] = np.where(np.isfinite(age), "given", np.where(use, "morphologic", "none")).astype(object)
+    if not use.any():
+        return out, []
+    out["surface_age_ka"] = np.where(use, morph, age)
+    err = _col(out, "surface_age_err_ka")
+    out["surface_age_err_ka"] = np.where(use, _col(out, "morph_age_err_ka"), err)
+    ids = out["fault_id"].to_numpy()[use] if "fault_id" in out.columns else np.flatnonzero(use)
+    return out, [
+        f"fault(s) {_ids_text(ids)}: no surface_age_ka, the morphologic age of the scarp (kappa t / kappa, "
+        "regional kappa) used for the slip rate (age_source morphologic)"
+    ]
+
+
 def _endpoints(lines: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """First and last coordinate (x, y) of each (Multi)LineString."""
     coords, idx = shapely.get_coordinates(lines, return_index=True)

@@ -15,7 +15,7 @@ import pandas as pd
 from scipy import special
 
 from faultmap.errors import InputError, ParameterError
-from faultmap.hazard.inputs import _col, _compact, _ids_text, _require, _selected
+from faultmap.hazard.inputs import _col, _compact, _ids_text, _require, _selected, morphologic_age_fallback
 from faultmap.hazard.magnitudes import displacement_from_magnitude, get_relation, range_warnings
 
 __all__ = ["slip_rate_draws", "slip_rates"]
@@ -292,6 +292,8 @@ def slip_rates(
         raise ParameterError("n_draws must be >= 100 for stable percentiles")
     _require(faults, ("fault_id", "dip_deg"), "slip rates")
     sel, ids, warns = _selected(faults, fault_ids)
+    sel, w_morph = morphologic_age_fallback(sel)  # scarp-degradation ages where none is given
+    warns += w_morph
     n = len(sel)
 
     age = _col(sel, "surface_age_ka")
@@ -427,6 +429,7 @@ def slip_rates(
             "throw_used_m": np.where(ok, throw, np.nan),
             "age_used_ka": age,
             "age_err_used_ka": np.where(np.isfinite(age), aerr, np.nan),
+            "age_source": sel["age_source"].to_numpy(dtype=object),
             **cols,
             "rate_flag": rate_flag,
             "event_displacement_m": ev,
