@@ -15,7 +15,7 @@ import numpy as np
 from faultmap.errors import InputError, ParameterError
 from faultmap.registry import Param, Tool
 
-_FIGURES = ("throw_map.png", "throw_profiles.png", "throw_systems.png", "scarp_degradation.png")
+_FIGURES = ("throw_map.png", "throw_profiles.png", "throw_systems.png", "throw_degradation.png")
 
 #: Where throws come from (``auto``: the DEM where given, else throw points, else attributes).
 SOURCES = ("auto", "dem", "attributes", "points")
@@ -216,7 +216,7 @@ def run(ctx, p: dict) -> None:
         from faultmap.scarps.figures import degradation_figure
 
         ctx.save_figure(
-            degradation_figure(res.faults, res.stations, pixel_size_m=params.pixel_size_m), "scarp_degradation.png"
+            degradation_figure(res.faults, res.stations, pixel_size_m=params.pixel_size_m), "throw_degradation.png"
         )
 
 
