@@ -47,7 +47,9 @@ n_draws = 200
 """
 
 
-def demo_field_throws(stations: pd.DataFrame, truth: pd.DataFrame, *, crs, seed: int = 11) -> gpd.GeoDataFrame:
+def demo_field_throws(
+    stations: pd.DataFrame, truth: pd.DataFrame, *, crs, seed: int = 11
+) -> gpd.GeoDataFrame:
     """Field throw measurements along the longest faults.
 
     Parameters
@@ -69,7 +71,11 @@ def demo_field_throws(stations: pd.DataFrame, truth: pd.DataFrame, *, crs, seed:
     st = stations[stations["fault_id"].isin(longest) & (stations["throw_m"] > 0)]
     # about one site per kilometre along each fault
     step = max(1, int(round(1000.0 / 100.0)))
-    st = st.groupby("fault_id", group_keys=False).apply(lambda g: g.iloc[step // 2::step]).reset_index(drop=True)
+    st = (
+        st.groupby("fault_id", group_keys=False)
+        .apply(lambda g: g.iloc[step // 2 :: step])
+        .reset_index(drop=True)
+    )
     throw = st["throw_m"].to_numpy() * (1.0 + 0.05 * rng.standard_normal(len(st)))
     off = rng.uniform(10.0, 40.0, len(st)) * rng.choice([-1.0, 1.0], len(st))
     ang = rng.uniform(0.0, 2.0 * np.pi, len(st))
@@ -86,11 +92,15 @@ def demo_field_throws(stations: pd.DataFrame, truth: pd.DataFrame, *, crs, seed:
 
 
 def _compass(az: np.ndarray) -> np.ndarray:
-    names = np.array(["N", "NNE", "NE", "ENE", "E", "ESE", "SE", "SSE", "S", "SSW", "SW", "WSW", "W", "WNW", "NW", "NNW"])
+    names = np.array(
+        ["N", "NNE", "NE", "ENE", "E", "ESE", "SE", "SSE", "S", "SSW", "SW", "WSW", "W", "WNW", "NW", "NNW"]
+    )
     return names[np.round((np.asarray(az) % 360.0) / 22.5).astype(int) % 16]
 
 
-def demo_fault_database(user_layer: gpd.GeoDataFrame, truth: pd.DataFrame, *, seed: int = 12) -> gpd.GeoDataFrame:
+def demo_fault_database(
+    user_layer: gpd.GeoDataFrame, truth: pd.DataFrame, *, seed: int = 12
+) -> gpd.GeoDataFrame:
     """Return the traces with fault-database attributes (ranges, triples, compass letters from true north).
 
     Parameters
@@ -120,7 +130,9 @@ def demo_fault_database(user_layer: gpd.GeoDataFrame, truth: pd.DataFrame, *, se
             "max_throw_m": [f"{0.8 * t:.0f}-{1.2 * t:.0f}" for t in tmax],
             "active": active.astype(np.int32),
             "surface_age_ka": np.where(active, truth["surface_age_ka"].to_numpy(), np.nan),
-            "slip_rate_mm_yr": [f"{0.7 * r:.3f}-{1.3 * r:.3f}" if a else "" for r, a in zip(rate, active, strict=True)],
+            "slip_rate_mm_yr": [
+                f"{0.7 * r:.3f}-{1.3 * r:.3f}" if a else "" for r, a in zip(rate, active, strict=True)
+            ],
         },
         geometry=user_layer.geometry.to_numpy(),
         crs=user_layer.crs,

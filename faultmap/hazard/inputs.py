@@ -200,7 +200,9 @@ def rates_from_field(
     warns: list[str] = []
     zero = screened & np.isfinite(pref) & (pref <= 0) & ~have
     if zero.any():
-        warns.append(f"fault(s) {_ids_text(out['fault_id'].to_numpy()[zero])}: slip_rate_mm_yr is 0: no rate or recurrence")
+        warns.append(
+            f"fault(s) {_ids_text(out['fault_id'].to_numpy()[zero])}: slip_rate_mm_yr is 0: no rate or recurrence"
+        )
     rows = np.flatnonzero(use)
     if rows.size == 0:
         return out, 0, warns
@@ -225,7 +227,11 @@ def rates_from_field(
         for k, v in draws.items():
             pct[k][:, b] = np.percentile(v, (16.0, 50.0, 84.0), axis=1)
     for comp in ("vert", "horiz", "net"):
-        for col, i in ((f"slip_rate_{comp}_p16_mm_yr", 0), (f"slip_rate_{comp}_mm_yr", 1), (f"slip_rate_{comp}_p84_mm_yr", 2)):
+        for col, i in (
+            (f"slip_rate_{comp}_p16_mm_yr", 0),
+            (f"slip_rate_{comp}_mm_yr", 1),
+            (f"slip_rate_{comp}_p84_mm_yr", 2),
+        ):
             if col not in out:
                 out[col] = np.nan
             out.loc[out.index[rows], col] = pct[comp][i]

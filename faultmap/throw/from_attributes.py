@@ -84,5 +84,7 @@ def throws_from_attributes(faults: gpd.GeoDataFrame) -> tuple[gpd.GeoDataFrame, 
     if (~has).any():
         ids = f["fault_id"].to_numpy()[~has]
         shown = ", ".join(map(str, ids[:10])) + (f" and {ids.size - 10} more" if ids.size > 10 else "")
-        warns.append(f"{int((~has).sum())} fault(s) have no max_throw_m or displacement_m attribute (fault ids {shown}): no throw.")
+        warns.append(
+            f"{int((~has).sum())} fault(s) have no max_throw_m or displacement_m attribute (fault ids {shown}): no throw."
+        )
     return f, warns

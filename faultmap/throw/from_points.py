@@ -22,8 +22,17 @@ __all__ = ["snap_to_traces", "point_stations", "throws_from_points"]
 #: Columns of ``throw_stations`` a point measurement gives itself (or that the summaries add); the
 #: DEM route's other columns (:data:`faultmap.throw.step.STATION_COLUMNS`) are written as NaN so both
 #: routes write one layout.
-_POINT_COLUMNS = ("fault_id", "dist_m", "throw_m", "throw_err_m", "heave_m", "status", "throw_smooth_m",
-                  "throw_smooth_err_m", "outlier")
+_POINT_COLUMNS = (
+    "fault_id",
+    "dist_m",
+    "throw_m",
+    "throw_err_m",
+    "heave_m",
+    "status",
+    "throw_smooth_m",
+    "throw_smooth_err_m",
+    "outlier",
+)
 
 
 def snap_to_traces(points, lines, *, tolerance_m: float, point_keys=None, line_keys=None):
@@ -57,13 +66,19 @@ def snap_to_traces(points, lines, *, tolerance_m: float, point_keys=None, line_k
         return idx, np.full(n, np.nan), off
     if point_keys is None:
         tree = shapely.STRtree(lines)
-        (pi, li), dist = tree.query_nearest(pts, max_distance=tolerance_m, return_distance=True, all_matches=False)
+        (pi, li), dist = tree.query_nearest(
+            pts, max_distance=tolerance_m, return_distance=True, all_matches=False
+        )
         idx[pi] = li
         off[pi] = dist
     else:
         # every (point, trace) pair sharing a key, then the nearest per point: no loop over keys
-        pk = pd.DataFrame({"key": pd.Series(np.asarray(point_keys, dtype=object)).astype(str), "p": np.arange(n)})
-        lk = pd.DataFrame({"key": pd.Series(np.asarray(line_keys, dtype=object)).astype(str), "l": np.arange(len(lines))})
+        pk = pd.DataFrame(
+            {"key": pd.Series(np.asarray(point_keys, dtype=object)).astype(str), "p": np.arange(n)}
+        )
+        lk = pd.DataFrame(
+            {"key": pd.Series(np.asarray(line_keys, dtype=object)).astype(str), "l": np.arange(len(lines))}
+        )
         pairs = pk.merge(lk, on="key")
         if len(pairs):
             d = shapely.distance(pts[pairs["p"].to_numpy()], lines[pairs["l"].to_numpy()])
@@ -130,10 +145,14 @@ def point_stations(
     kinds = shapely.get_type_id(geoms)
     if len(points) and not np.all(kinds == 0):
         i = int(np.flatnonzero(kinds != 0)[0])
-        raise InputError(f"{where}: feature {ids[i]} is not a Point; give a point layer of throw measurements.")
+        raise InputError(
+            f"{where}: feature {ids[i]} is not a Point; give a point layer of throw measurements."
+        )
     if tname not in points.columns:
         have = ", ".join(str(c) for c in points.columns if c != points.geometry.name) or "none"
-        raise InputError(f"{where}: no field '{tname}' for the throws; columns are: {have}. Map it with --field throw_m=COLUMN.")
+        raise InputError(
+            f"{where}: no field '{tname}' for the throws; columns are: {have}. Map it with --field throw_m=COLUMN."
+        )
     tv = parse_values(points[tname], field=tname, ids=ids, where=where, lower=0.0)
     err = sigma_from_range(tv)
     if ename in points.columns:
@@ -151,41 +170,54 @@ def point_stations(
     if join_field:
         for layer, df in (("traces", faults), (where, points)):
             if join_field not in df.columns:
-                raise InputError(f"{layer}: no field '{join_field}' to join throw points to traces; check join_field.")
+                raise InputError(
+                    f"{layer}: no field '{join_field}' to join throw points to traces; check join_field."
+                )
         keys = (points[join_field].to_numpy(), faults[join_field].to_numpy())
     lines = faults.geometry.to_numpy()
     li, dist, off = snap_to_traces(
-        geoms, lines, tolerance_m=tolerance_m,
-        point_keys=None if keys is None else keys[0], line_keys=None if keys is None else keys[1],
+        geoms,
+        lines,
+        tolerance_m=tolerance_m,
+        point_keys=None if keys is None else keys[0],
+        line_keys=None if keys is None else keys[1],
     )
     use = (li >= 0) & np.isfinite(tv.preferred)
     lost = (li < 0) & np.isfinite(tv.preferred)
     if lost.any():
-        how = f"no trace with the same '{join_field}'" if join_field else f"farther than {tolerance_m:g} m from every trace"
+        how = (
+            f"no trace with the same '{join_field}'"
+            if join_field
+            else f"farther than {tolerance_m:g} m from every trace"
+        )
         shown = ", ".join(map(str, ids[lost][:10])) + (" ..." if lost.sum() > 10 else "")
         warns.append(f"{where}: {int(lost.sum())} point(s) {how} (features {shown}); they are not used.")
     fid = faults["fault_id"].to_numpy()[li[use]]
     dip = np.radians(faults["dip_deg"].to_numpy(dtype=float)[li[use]])
     T = tv.preferred[use]
-    st = pd.DataFrame({
-        "fault_id": fid,
-        "dist_m": dist[use],
-        "throw_m": T,
-        "throw_err_m": err[use],
-        "heave_m": T / np.tan(dip),
-        "status": np.full(int(use.sum()), "ok", dtype=object),
-        "offset_m": off[use],
-        "source_fid": ids[use],
-    })
+    st = pd.DataFrame(
+        {
+            "fault_id": fid,
+            "dist_m": dist[use],
+            "throw_m": T,
+            "throw_err_m": err[use],
+            "heave_m": T / np.tan(dip),
+            "status": np.full(int(use.sum()), "ok", dtype=object),
+            "offset_m": off[use],
+            "source_fid": ids[use],
+        }
+    )
     from faultmap.throw.step import STATION_COLUMNS
 
     for c in STATION_COLUMNS:
         if c not in _POINT_COLUMNS and c not in st.columns:
             st[c] = np.nan
-    foot = shapely.line_interpolate_point(lines[li[use]], dist[use])
+    foot = shapely.get_coordinates(shapely.line_interpolate_point(lines[li[use]], dist[use]))
+    st["x"], st["y"] = foot[:, 0], foot[:, 1]
     order = np.lexsort((st["dist_m"].to_numpy(), st["fault_id"].to_numpy()))
     st = st.take(order).reset_index(drop=True)
-    return gpd.GeoDataFrame(st, geometry=np.asarray(foot)[order], crs=faults.crs), warns
+    geom = gpd.points_from_xy(st["x"], st["y"], crs=faults.crs)
+    return gpd.GeoDataFrame(st.drop(columns=["x", "y"]), geometry=geom, crs=faults.crs), warns
 
 
 def throws_from_points(
@@ -215,11 +247,12 @@ def throws_from_points(
     tips (Walsh & Watterson 1988, from memory): a maximum is only as good as the points' cover of
     the fault's peak.
     """
-    geom = stations.geometry.to_numpy()
-    f, st = summarise_faults(faults, pd.DataFrame(stations.drop(columns=stations.geometry.name)),
-                             smooth_stations=smooth_stations)
-    # summarise_faults keeps the stations' order (sorted by fault and distance) and rows
-    out = gpd.GeoDataFrame(st, geometry=geom[: len(st)], crs=faults.crs)
+    xy = shapely.get_coordinates(stations.geometry.to_numpy())
+    table = pd.DataFrame(stations.drop(columns=stations.geometry.name)).assign(x=xy[:, 0], y=xy[:, 1])
+    f, st = summarise_faults(faults, table, smooth_stations=smooth_stations)
+    out = gpd.GeoDataFrame(
+        st.drop(columns=["x", "y"]), geometry=gpd.points_from_xy(st["x"], st["y"]), crs=faults.crs
+    )
     out["throw_source"] = "points"
     has = np.isfinite(f["max_throw_m"].to_numpy(dtype=float))
     f["throw_source"] = np.where(has, "points", "none").astype(object)

@@ -75,6 +75,8 @@ def run(ctx, p: dict) -> None:
     if source is None:
         raise InputError(f"throw: {reason}.")
     ctx.record("source_used", source)
+    if source == "dem" and getattr(ctx, "throw_points", None) is not None:
+        ctx.warn("throw points are not used when the throws come from the DEM; set source = 'points' to use them.")
     if source != "dem":
         _run_without_dem(ctx, p, source)
         return

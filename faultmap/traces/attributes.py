@@ -135,7 +135,11 @@ def parse_values(
         ok_tri = tri.notna().all(axis=1).to_numpy()
         ok_rng = rng.notna().all(axis=1).to_numpy() & ~ok_tri
         p = pos[ok_tri]
-        lo[p], pref[p], hi[p] = tri[0].to_numpy()[ok_tri], tri[1].to_numpy()[ok_tri], tri[2].to_numpy()[ok_tri]
+        lo[p], pref[p], hi[p] = (
+            tri[0].to_numpy()[ok_tri],
+            tri[1].to_numpy()[ok_tri],
+            tri[2].to_numpy()[ok_tri],
+        )
         kind[p] = "triple"
         p = pos[ok_rng]
         a, b = rng[0].to_numpy()[ok_rng], rng[1].to_numpy()[ok_rng]
@@ -159,7 +163,14 @@ def parse_values(
     order &= kind != "missing"
     if order.any():
         i = int(np.flatnonzero(order)[0])
-        raise _fail(where, ids[i], field, raw.iloc[i], "a range or triple must run from the smallest to the largest value", label)
+        raise _fail(
+            where,
+            ids[i],
+            field,
+            raw.iloc[i],
+            "a range or triple must run from the smallest to the largest value",
+            label,
+        )
     given = kind != "missing"
     if lower is not None and upper is not None:
         bad = given & ((lo < lower) | (~lower_inclusive & (lo == lower)) | (hi > upper))

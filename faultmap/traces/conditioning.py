@@ -69,17 +69,6 @@ def orient_traces(lines, strike_deg) -> np.ndarray:
     return out
 
 
-def _numeric(series: pd.Series, *, field: str, ids, where: str) -> np.ndarray:
-    vals = pd.to_numeric(series, errors="coerce")
-    bad = vals.isna() & series.notna() & (series.astype(str).str.strip() != "")
-    if bad.any():
-        i = int(np.flatnonzero(bad.to_numpy())[0])
-        raise InputError(
-            f"{where}: feature {ids[i]}: field '{field}' is {series.iloc[i]!r}, not a number; fix the attribute."
-        )
-    return vals.to_numpy(dtype=float)
-
-
 def _bool(series: pd.Series, *, field: str, ids, where: str) -> np.ndarray:
     s = series.astype(object)
     out = np.zeros(len(s), dtype=bool)

@@ -72,8 +72,12 @@ def _info(res) -> dict:
 
 def test_traces_alone_give_length_statistics_and_magnitudes(traces_only, tmp_path):
     res = run_tools(
-        ["scaling", "hazard"], inputs={"faults": str(traces_only)}, out=tmp_path / "out.gpkg",
-        params={"scaling": {"gof_n": 0}, "hazard": {"n_draws": 200}}, quiet=True, report=False,
+        ["scaling", "hazard"],
+        inputs={"faults": str(traces_only)},
+        out=tmp_path / "out.gpkg",
+        params={"scaling": {"gof_n": 0}, "hazard": {"n_draws": 200}},
+        quiet=True,
+        report=False,
     )
     info = _info(res)
     assert info["tools"] == "prepare,scaling,hazard"
@@ -94,7 +98,7 @@ def test_traces_alone_give_length_statistics_and_magnitudes(traces_only, tmp_pat
     # (symmetric), the net rate's 16-84 % range stays inside the given range
     net = f["slip_rate_net_mm_yr"].to_numpy(dtype=float)
     assert np.isfinite(net).all() and (f["slip_rate_source"] == "field").all()
-    assert np.allclose(net[N // 2:], 0.3, atol=0.03)
+    assert np.allclose(net[N // 2 :], 0.3, atol=0.03)
     assert (f["slip_rate_net_p16_mm_yr"] >= 0.1).all() and (f["slip_rate_net_p84_mm_yr"] <= 0.6).all()
     # vertical = net x sin(dip) (geometry): below the net rate for every dip under 90
     assert (f["slip_rate_vert_mm_yr"] < f["slip_rate_net_mm_yr"]).all()
@@ -107,11 +111,16 @@ def test_traces_alone_give_length_statistics_and_magnitudes(traces_only, tmp_pat
 
 def test_throw_attributes_give_dl_scaling_and_every_tool(traces_with_throws, tmp_path):
     res = run_tools(
-        ["scaling", "transect", "strain", "width", "hazard"], inputs={"faults": str(traces_with_throws)},
+        ["scaling", "transect", "strain", "width", "hazard"],
+        inputs={"faults": str(traces_with_throws)},
         out=tmp_path / "out.gpkg",
-        params={"scaling": {"gof_n": 0, "bootstrap_n": 50}, "hazard": {"n_draws": 200},
-                "transect": {"n_draws": 50}},
-        quiet=True, report=False,
+        params={
+            "scaling": {"gof_n": 0, "bootstrap_n": 50},
+            "hazard": {"n_draws": 200},
+            "transect": {"n_draws": 50},
+        },
+        quiet=True,
+        report=False,
     )
     info = _info(res)
     assert info["throw.source_used"] == "attributes"
@@ -126,7 +135,14 @@ def test_throw_attributes_give_dl_scaling_and_every_tool(traces_with_throws, tmp
     assert dl.fits["ols"].exponent == pytest.approx(1.0, abs=0.01)
     assert dl.fits["ols"].gamma == pytest.approx(0.02, rel=0.1)
     # every tool ran and wrote its layers
-    for layer in ("scaling", "transects", "transect_crossings", "strain_cells", "rift_axis", "rupture_scenarios"):
+    for layer in (
+        "scaling",
+        "transects",
+        "transect_crossings",
+        "strain_cells",
+        "rift_axis",
+        "rupture_scenarios",
+    ):
         assert layer in res.layers and len(res.layers[layer]), layer
     cross = res.layers["transect_crossings"]
     assert (cross["fault_throw_source"] == "attributes").all()
@@ -139,8 +155,12 @@ def test_throw_attributes_give_dl_scaling_and_every_tool(traces_with_throws, tmp
 def test_run_without_steps_leaves_out_what_cannot_run(traces_only, tmp_path):
     res = run_tools(
         ["prepare", "throw", "scaling", "transect", "strain", "width", "hazard"],
-        inputs={"faults": str(traces_only)}, out=tmp_path / "out.gpkg", skip_unavailable=True,
-        params={"scaling": {"gof_n": 0}, "hazard": {"n_draws": 200}}, quiet=True, report=False,
+        inputs={"faults": str(traces_only)},
+        out=tmp_path / "out.gpkg",
+        skip_unavailable=True,
+        params={"scaling": {"gof_n": 0}, "hazard": {"n_draws": 200}},
+        quiet=True,
+        report=False,
     )
     info = _info(res)
     assert info["tools"] == "prepare,scaling,width,hazard"
@@ -152,11 +172,22 @@ def test_run_without_steps_leaves_out_what_cannot_run(traces_only, tmp_path):
 
 def test_asking_for_a_tool_that_cannot_run_names_why(traces_only, tmp_path):
     with pytest.raises(InputError, match=r"transect: needs throw, which was left out \(no DEM"):
-        run_tools(["transect"], inputs={"faults": str(traces_only)}, out=tmp_path / "o.gpkg", quiet=True,
-                  report=False)
+        run_tools(
+            ["transect"],
+            inputs={"faults": str(traces_only)},
+            out=tmp_path / "o.gpkg",
+            quiet=True,
+            report=False,
+        )
     with pytest.raises(InputError, match="throw: source 'dem' needs a DEM"):
-        run_tools(["throw"], inputs={"faults": str(traces_only)}, out=tmp_path / "o.gpkg", quiet=True,
-                  report=False, params={"throw": {"source": "dem"}})
+        run_tools(
+            ["throw"],
+            inputs={"faults": str(traces_only)},
+            out=tmp_path / "o.gpkg",
+            quiet=True,
+            report=False,
+            params={"throw": {"source": "dem"}},
+        )
 
 
 def test_demo_run_without_dem(tmp_path):
@@ -171,8 +202,9 @@ def test_demo_run_without_dem(tmp_path):
     info = _info(res)
     assert info["tools"] == "prepare,throw,scaling,transect,strain,width,hazard"
     assert info["throw.source_used"] == "points"
-    f = res.layers["faults"].merge(pd.read_csv(paths["truth"])[["name", "max_throw_m"]], on="name",
-                                   suffixes=("", "_true"))
+    f = res.layers["faults"].merge(
+        pd.read_csv(paths["truth"])[["name", "max_throw_m"]], on="name", suffixes=("", "_true")
+    )
     src = f["throw_source"].value_counts()
     assert src["points"] == 6 and src["attributes"] == 16
     # points every ~1 km with 5 % noise (demo_area.database): maxima within 15 % of the scene's truth

@@ -21,7 +21,13 @@ from faultmap.crs import meridian_convergence_deg, true_to_grid_azimuth
 E2_WGS84 = 0.00669437999014  # first eccentricity squared of WGS 84 (NIMA TR8350.2; from memory)
 
 #: (EPSG, lon, lat): away from the central meridian, both hemispheres
-POINTS = [(32633, 17.5, 45.0), (32633, 12.2, 60.0), (32733, 17.9, -35.0), (32633, 19.5, 10.0), (32614, -95.2, 33.0)]
+POINTS = [
+    (32633, 17.5, 45.0),
+    (32633, 12.2, 60.0),
+    (32733, 17.9, -35.0),
+    (32633, 19.5, 10.0),
+    (32614, -95.2, 33.0),
+]
 
 
 def _series_deg(dlon_deg, lat_deg):
@@ -30,8 +36,14 @@ def _series_deg(dlon_deg, lat_deg):
     ep2 = E2_WGS84 / (1.0 - E2_WGS84)
     eta2 = ep2 * np.cos(phi) ** 2
     c2 = np.cos(phi) ** 2
-    g = dl * np.sin(phi) * (
-        1.0 + dl**2 * c2 / 3.0 * (1.0 + 3.0 * eta2 + 2.0 * eta2**2) + dl**4 * c2**2 / 15.0 * (2.0 - np.tan(phi) ** 2)
+    g = (
+        dl
+        * np.sin(phi)
+        * (
+            1.0
+            + dl**2 * c2 / 3.0 * (1.0 + 3.0 * eta2 + 2.0 * eta2**2)
+            + dl**4 * c2**2 / 15.0 * (2.0 - np.tan(phi) ** 2)
+        )
     )
     return np.degrees(g)
 

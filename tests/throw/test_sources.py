@@ -24,16 +24,24 @@ CRS = "EPSG:32633"
 X0, Y0 = 500_000.0, 4_500_000.0
 
 #: (length m, max throw m, shape, peak position)
-SCENE = ((12_000.0, 240.0, "elliptical", 0.5), (6_000.0, 90.0, "triangular", 0.35), (9_000.0, 150.0, "elliptical", 0.7))
+SCENE = (
+    (12_000.0, 240.0, "elliptical", 0.5),
+    (6_000.0, 90.0, "triangular", 0.35),
+    (9_000.0, 150.0, "elliptical", 0.7),
+)
 
 
 def _faults() -> gpd.GeoDataFrame:
     lines = [
-        shapely.LineString([(X0 + 4000.0 * i, Y0), (X0 + 4000.0 * i + 300.0, Y0 + L / 2), (X0 + 4000.0 * i, Y0 + L)])
+        shapely.LineString(
+            [(X0 + 4000.0 * i, Y0), (X0 + 4000.0 * i + 300.0, Y0 + L / 2), (X0 + 4000.0 * i, Y0 + L)]
+        )
         for i, (L, *_rest) in enumerate(SCENE)
     ]
     return gpd.GeoDataFrame(
-        {"fault_id": [1, 2, 3], "dip_deg": [60.0, 55.0, 70.0], "key": ["a", "b", "c"]}, geometry=lines, crs=CRS
+        {"fault_id": [1, 2, 3], "dip_deg": [60.0, 55.0, 70.0], "key": ["a", "b", "c"]},
+        geometry=lines,
+        crs=CRS,
     )
 
 
@@ -78,7 +86,7 @@ def test_points_missing_the_peak_underestimate():
     pts = _points(faults)
     far_from_peak = []
     for i in range(len(SCENE)):
-        sub = pts.iloc[i * 9:(i + 1) * 9 - 1]  # drop the point at the peak
+        sub = pts.iloc[i * 9 : (i + 1) * 9 - 1]  # drop the point at the peak
         far_from_peak.append(sub.iloc[[0, 1, -2, -1]])
     st, _ = point_stations(faults, pd.concat(far_from_peak), tolerance_m=200.0)
     f, _ = throws_from_points(faults, st)
@@ -89,8 +97,11 @@ def test_snapping_tolerance_and_join_field():
     faults = _faults()
     pts = gpd.GeoDataFrame(
         {"throw_m": [10.0, 20.0, 30.0], "key": ["a", "c", "zz"]},
-        geometry=[shapely.Point(X0 + 100.0, Y0 + 3000.0), shapely.Point(X0 + 1900.0, Y0 + 3000.0),
-                  shapely.Point(X0 + 100.0, Y0 + 100.0)],
+        geometry=[
+            shapely.Point(X0 + 100.0, Y0 + 3000.0),
+            shapely.Point(X0 + 1900.0, Y0 + 3000.0),
+            shapely.Point(X0 + 100.0, Y0 + 100.0),
+        ],
         crs=CRS,
     )
     # nearest within 200 m: point 2 (1.6-1.8 km from both traces) is dropped
@@ -100,8 +111,13 @@ def test_snapping_tolerance_and_join_field():
     assert dist[0] == pytest.approx(faults.geometry.iloc[0].project(pts.geometry.iloc[0]))
     assert off[0] == pytest.approx(faults.geometry.iloc[0].distance(pts.geometry.iloc[0]))
     # joined by key: point 2 goes to fault 'c' however far, 'zz' matches nothing
-    idx, _, _ = snap_to_traces(pts.geometry.to_numpy(), faults.geometry.to_numpy(), tolerance_m=200.0,
-                               point_keys=pts["key"], line_keys=faults["key"])
+    idx, _, _ = snap_to_traces(
+        pts.geometry.to_numpy(),
+        faults.geometry.to_numpy(),
+        tolerance_m=200.0,
+        point_keys=pts["key"],
+        line_keys=faults["key"],
+    )
     assert list(idx) == [0, 2, -1]
     st, warns = point_stations(faults, pts, tolerance_m=200.0, where="pts.gpkg")
     assert len(st) == 2 and "farther than 200 m" in warns[-1] and "features 2" in warns[-1]
@@ -132,7 +148,11 @@ def test_attribute_throws_and_displacements():
     assert f["max_throw_m"].iloc[0] == 100.0 and f["max_throw_err_m"].iloc[0] == 5.0
     assert f["max_throw_m"].iloc[1] == pytest.approx(80.0 * np.sin(np.radians(55.0)))
     assert f["max_throw_err_m"].iloc[1] == pytest.approx(10.0 * np.sin(np.radians(55.0)))
-    assert np.isnan(f["max_throw_m"].iloc[2]) and list(f["throw_source"]) == ["attributes", "attributes", "none"]
+    assert np.isnan(f["max_throw_m"].iloc[2]) and list(f["throw_source"]) == [
+        "attributes",
+        "attributes",
+        "none",
+    ]
     assert "fault ids 3" in warns[0]
     # assumed parabola: mean = 2/3 max (integral of 1 - r^2 over [-1, 1] is 4/3), heave integral =
     # mean x length / tan(dip)

@@ -51,7 +51,24 @@ def test_spellings_table():
 
 def test_compass_letters():
     # the 16 points: N = 0, NNE = 22.5, ... NNW = 337.5 (definition of the compass rose)
-    names = ["N", "NNE", "NE", "ENE", "E", "ESE", "SE", "SSE", "S", "SSW", "SW", "WSW", "W", "WNW", "NW", "NNW"]
+    names = [
+        "N",
+        "NNE",
+        "NE",
+        "ENE",
+        "E",
+        "ESE",
+        "SE",
+        "SSE",
+        "S",
+        "SSW",
+        "SW",
+        "WSW",
+        "W",
+        "WNW",
+        "NW",
+        "NNW",
+    ]
     assert [COMPASS_DEG[n] for n in names] == [22.5 * i for i in range(16)]
     p = parse_values(pd.Series(["ne", " SW ", "wnw", "135"]), field="dip_dir", ids=[1, 2, 3, 4], compass=True)
     assert list(p.preferred) == [45.0, 225.0, 292.5, 135.0]
@@ -76,8 +93,16 @@ def test_compass_letters():
 def test_bad_spellings_name_feature_field_and_value(value, words):
     values = pd.Series(["60", "55", value])
     with pytest.raises(InputError) as err:
-        parse_values(values, field="DIP_ANG", ids=[4, 5, 6], where="db.gpkg, layer 'faults'", lower=0.0,
-                     upper=90.0, lower_inclusive=False, label="dip")
+        parse_values(
+            values,
+            field="DIP_ANG",
+            ids=[4, 5, 6],
+            where="db.gpkg, layer 'faults'",
+            lower=0.0,
+            upper=90.0,
+            lower_inclusive=False,
+            label="dip",
+        )
     msg = str(err.value)
     assert msg.startswith("db.gpkg, layer 'faults': feature 6: field 'DIP_ANG' (dip) is ")
     assert words in msg and "\n" not in msg and "fix the attribute" in msg
@@ -85,8 +110,10 @@ def test_bad_spellings_name_feature_field_and_value(value, words):
 
 def _gdf(**cols) -> gpd.GeoDataFrame:
     n = len(next(iter(cols.values())))
-    lines = [shapely.LineString([(500_000.0 + 1000 * i, 4_000_000.0), (500_000.0 + 1000 * i, 4_003_000.0)])
-             for i in range(n)]
+    lines = [
+        shapely.LineString([(500_000.0 + 1000 * i, 4_000_000.0), (500_000.0 + 1000 * i, 4_003_000.0)])
+        for i in range(n)
+    ]
     return gpd.GeoDataFrame(cols, geometry=lines, crs="EPSG:32633")
 
 
@@ -103,12 +130,19 @@ def test_prepare_reads_database_attributes():
     assert list(out["dip_min_deg"][:2]) == [50.0, 45.0] and list(out["dip_max_deg"][:2]) == [70.0, 45.0]
     assert list(out["dip_dir_deg"]) == [90.0, 270.0, 90.0]
     assert out["surface_age_ka"].iloc[0] == 20.0 and out["surface_age_err_ka"].iloc[0] == pytest.approx(5.0)
-    assert out["given_max_throw_m"].iloc[0] == 120.0 and out["given_max_throw_err_m"].iloc[0] == pytest.approx(10.0)
-    assert list(out["slip_rate_min_mm_yr"][:2]) == [0.1, 0.2] and list(out["slip_rate_max_mm_yr"][:2]) == [0.5, 0.2]
+    assert out["given_max_throw_m"].iloc[0] == 120.0 and out["given_max_throw_err_m"].iloc[
+        0
+    ] == pytest.approx(10.0)
+    assert list(out["slip_rate_min_mm_yr"][:2]) == [0.1, 0.2] and list(out["slip_rate_max_mm_yr"][:2]) == [
+        0.5,
+        0.2,
+    ]
 
 
 def test_dip_direction_range_is_an_error():
-    with pytest.raises(InputError, match=r"feature 1: field 'dip_dir' is '80-100': a dip direction is one azimuth"):
+    with pytest.raises(
+        InputError, match=r"feature 1: field 'dip_dir' is '80-100': a dip direction is one azimuth"
+    ):
         condition_traces(_gdf(dip_dir=["80-100"]))
 
 
@@ -118,7 +152,9 @@ def test_true_north_dip_directions_become_grid_azimuths():
     from pyproj import CRS, Proj, Transformer
 
     g = _gdf(dip_dir=["90"])
-    g = g.set_geometry([shapely.LineString([(700_000.0, 4_000_000.0), (700_000.0, 4_003_000.0)])], crs="EPSG:32633")
+    g = g.set_geometry(
+        [shapely.LineString([(700_000.0, 4_000_000.0), (700_000.0, 4_003_000.0)])], crs="EPSG:32633"
+    )
     true_out, _ = condition_traces(g, azimuth_reference="true")
     grid_out, _ = condition_traces(g, azimuth_reference="grid")
     lon, lat = Transformer.from_crs(32633, 4326, always_xy=True).transform(700_000.0, 4_001_500.0)
