@@ -148,6 +148,34 @@ def _throw(s: dict, layers: Mapping, rec: Mapping) -> None:
              lambda r: f"{fmt_num(_v(r, 'n_stations_ok'))} / {fmt_num(_v(r, 'n_stations'))}"),
             ("system_id", "linked system", "r", lambda r: fmt_num(_v(r, "system_id")))]
     _add_table(s, f"Largest maximum throws ({len(df)} of {len(faults)} faults)", df, cols)
+    _degradation(s, faults, rec)
+
+
+def _degradation(s: dict, faults, rec: Mapping) -> None:
+    """Scarp degradation (kappa t, faultmap.scarps): counts, the freshest and most degraded, ages when given."""
+    if not _has(faults, "kappa_t_flag", "kappa_t_m2"):
+        return
+    s["facts"].append(("faults by scarp degradation (kappa t)", _count_text(faults["kappa_t_flag"])))
+    s["paragraphs"].append(
+        "Scarp degradation: every station's profile is also fitted with the diffusion form of a degraded scarp "
+        "(Hanks et al. 1984), giving kappa t (diffusivity \u00d7 age, m\u00b2); rank 1 is the freshest. "
+        "'upper_bound' marks scarps narrower than the pixels resolve (fresher than the bound). Ages "
+        "(morph_age_ka) are morphologic, only as good as the regional kappa used."
+    )
+    if rec.get("kappa_m2_kyr_used"):
+        s["facts"].append(("kappa used for morphologic ages (m\u00b2/kyr)", rec["kappa_m2_kyr_used"]))
+    df = faults.assign(_kt=_finite(faults["kappa_t_m2"])).dropna(subset=["_kt"]).sort_values("_kt")
+    if len(df) > _TOP_N:
+        df = df.iloc[list(range(_TOP_N // 2)) + list(range(len(df) - _TOP_N // 2, len(df)))]
+    cols = [("fault_id", "fault", "r", lambda r: fmt_num(_v(r, "fault_id"))),
+            ("kappa_t_rank", "rank (1 = freshest)", "r", lambda r: fmt_num(_v(r, "kappa_t_rank"))),
+            ("kappa_t_m2", "\u03bat \u00b1 1\u03c3 (m\u00b2)", "r", lambda r: fmt_pm(r["_kt"], _v(r, "kappa_t_err_m2"))),
+            ("kappa_t_n", "stations", "r", lambda r: fmt_num(_v(r, "kappa_t_n"))),
+            ("max_throw_m", "max throw (m)", "r", lambda r: fmt_num(_v(r, "max_throw_m"))),
+            ("morph_age_ka", "morphologic age [16-84 %] (ka)", "r", lambda r: fmt_range(
+                _v(r, "morph_age_ka"), _v(r, "morph_age_p16_ka"), _v(r, "morph_age_p84_ka")))]
+    _add_table(s, f"Scarp degradation, freshest and most degraded ({len(df)} faults with a measured kappa t)",
+               df, cols)
 
 
 def _add_table(s: dict, caption: str, df, cols: list[tuple[str, str, str, Callable]], note: str = "") -> None:

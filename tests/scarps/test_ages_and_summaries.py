@@ -131,3 +131,20 @@ def test_figure_draws(tmp_path):
     fig = degradation_figure(f, st, pixel_size_m=5.0)
     fig.savefig(tmp_path / "d.png", dpi=60)
     assert (tmp_path / "d.png").stat().st_size > 1000
+
+
+def test_report_section_lists_kappa_t_and_ages():
+    from faultmap.report.sections import build_section
+
+    faults = pd.DataFrame({
+        "fault_id": [1, 2, 3], "max_throw_m": [10.0, 20.0, 5.0], "kappa_t_m2": [30.0, 8.0, np.nan],
+        "kappa_t_err_m2": [2.0, 1.0, np.nan], "kappa_t_n": [20, 15, 0], "kappa_t_rank": [2.0, 1.0, np.nan],
+        "kappa_t_flag": ["measured", "measured", "upper_bound"], "morph_age_ka": [15.0, 4.0, np.nan],
+        "morph_age_p16_ka": [12.0, 3.0, np.nan], "morph_age_p84_ka": [18.0, 5.0, np.nan],
+    })
+    s = build_section("throw", {"faults": faults}, {"kappa_m2_kyr_used": "2 (16-84 %: 2-2)"})
+    facts = dict(s["facts"])
+    assert facts["faults by scarp degradation (kappa t)"] == "measured 2, upper_bound 1"
+    tab = next(t for t in s["tables"] if t["caption"].startswith("Scarp degradation"))
+    assert [r[0] for r in tab["rows"]] == ["2", "1"]  # freshest first
+    assert any("morphologic" in p for p in s["paragraphs"])
