@@ -15,7 +15,14 @@ import numpy as np
 
 from faultmap.errors import InputError, ParameterError
 
-__all__ = ["PUBLISHED_KAPPA", "AGE_COLUMNS", "kappa_draws", "calibrated_kappa_draws", "morphologic_ages", "fault_ages"]
+__all__ = [
+    "PUBLISHED_KAPPA",
+    "AGE_COLUMNS",
+    "kappa_draws",
+    "calibrated_kappa_draws",
+    "morphologic_ages",
+    "fault_ages",
+]
 
 #: Published mass diffusivities of scarps in unconsolidated deposits (regional: a value holds for the
 #: climate and materials where it was calibrated; all recalled, from memory, to be checked).
@@ -85,9 +92,13 @@ def calibrated_kappa_draws(kt_m2, kt_err_m2, age_ka, age_err_ka, *, n_draws: int
     """
     kt, ke, a, ae = (float(v) for v in (kt_m2, kt_err_m2, age_ka, age_err_ka))
     if not (np.isfinite(kt) and kt > 0):
-        raise InputError(f"the calibration scarp has no measured kappa t (got {kt_m2!r}); choose a dated fault whose kappa_t_flag is 'measured'.")
+        raise InputError(
+            f"the calibration scarp has no measured kappa t (got {kt_m2!r}); choose a dated fault whose kappa_t_flag is 'measured'."
+        )
     if not (np.isfinite(a) and a > 0):
-        raise InputError(f"the calibration scarp has no positive surface_age_ka (got {age_ka!r}); give its age in ka.")
+        raise InputError(
+            f"the calibration scarp has no positive surface_age_ka (got {age_ka!r}); give its age in ka."
+        )
     rng = np.random.default_rng(seed)
     sl = ke / kt if np.isfinite(ke) and ke > 0 else 0.0
     ktd = kt * np.exp(rng.standard_normal(int(n_draws)) * sl)
@@ -131,7 +142,9 @@ def morphologic_ages(kt_m2, kt_err_m2, kappa_draws_m2_kyr, *, bound_m2=None, see
     if good.any() and d:
         rng = np.random.default_rng(seed)
         sl = np.where(np.isfinite(ke[good]) & (ke[good] > 0), ke[good] / kt[good], 0.0)
-        draws = kt[good, None] * np.exp(sl[:, None] * rng.standard_normal((int(good.sum()), d))) / kap[None, :]
+        draws = (
+            kt[good, None] * np.exp(sl[:, None] * rng.standard_normal((int(good.sum()), d))) / kap[None, :]
+        )
         q = np.percentile(draws, [16.0, 50.0, 84.0], axis=1)
         out["age_p16_ka"][good], out["age_ka"][good], out["age_p84_ka"][good] = q
         out["age_err_ka"][good] = 0.5 * (q[2] - q[0])
@@ -143,12 +156,25 @@ def morphologic_ages(kt_m2, kt_err_m2, kappa_draws_m2_kyr, *, bound_m2=None, see
 
 
 #: Columns :func:`fault_ages` adds to the faults.
-AGE_COLUMNS = ("morph_age_ka", "morph_age_p16_ka", "morph_age_p84_ka", "morph_age_err_ka", "morph_age_max_ka",
-               "morph_age_basis")
+AGE_COLUMNS = (
+    "morph_age_ka",
+    "morph_age_p16_ka",
+    "morph_age_p84_ka",
+    "morph_age_err_ka",
+    "morph_age_max_ka",
+    "morph_age_basis",
+)
 
 
-def fault_ages(faults, *, kappa_m2_kyr=None, kappa_range_m2_kyr=None, calibration_fault_id=None,
-               n_draws: int = 4000, seed: int = 0):
+def fault_ages(
+    faults,
+    *,
+    kappa_m2_kyr=None,
+    kappa_range_m2_kyr=None,
+    calibration_fault_id=None,
+    n_draws: int = 4000,
+    seed: int = 0,
+):
     """Morphologic ages of every fault with a kappa t, from a regional kappa or a dated scarp.
 
     Parameters
@@ -199,8 +225,12 @@ def fault_ages(faults, *, kappa_m2_kyr=None, kappa_range_m2_kyr=None, calibratio
         age = r.get("surface_age_ka", np.nan)
         aerr = r.get("surface_age_err_ka", np.nan)
         kap = calibrated_kappa_draws(
-            r["kappa_t_m2"], r["kappa_t_err_m2"], np.nan if age is None else float(age),
-            np.nan if aerr is None else float(aerr), n_draws=n_draws, seed=seed,
+            r["kappa_t_m2"],
+            r["kappa_t_err_m2"],
+            np.nan if age is None else float(age),
+            np.nan if aerr is None else float(aerr),
+            n_draws=n_draws,
+            seed=seed,
         )
         basis = f"morphologic, kappa calibrated on fault {int(calibration_fault_id)}"
     measured = f["kappa_t_flag"].to_numpy(dtype=object) == "measured"

@@ -133,9 +133,7 @@ def _lin_solve(W, X, Z, E):
     sz = WZ.sum(1)
     sxz = (WZ * X).sum(1)
     sez = (WZ * E).sum(1)
-    M = np.stack(
-        [np.stack([sw, sx, se], -1), np.stack([sx, sxx, sxe], -1), np.stack([se, sxe, see], -1)], -2
-    )
+    M = np.stack([np.stack([sw, sx, se], -1), np.stack([sx, sxx, sxe], -1), np.stack([se, sxe, see], -1)], -2)
     rhs = np.stack([sz, sxz, sez], -1)
     M = M + np.eye(3) * 1e-9 * (np.abs(M).max(axis=(1, 2), keepdims=True) + 1e-30)
     coef = np.linalg.solve(M, rhs[..., None])[..., 0]
@@ -144,7 +142,7 @@ def _lin_solve(W, X, Z, E):
 
 
 def _jacobian(X, F, dF, u, p):
-    """Derivatives of the model by (c, b, A, x0, ln s), shape (m, 5, N)."""
+    """Return the derivatives of the model by (c, b, A, x0, ln s), shape (m, 5, N)."""
     m, N = X.shape
     J = np.empty((m, 5, N))
     J[:, 0] = 1.0

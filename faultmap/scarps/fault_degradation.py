@@ -35,7 +35,7 @@ MIN_STATIONS = 3
 
 
 def station_kappa_t(stations: pd.DataFrame) -> pd.DataFrame:
-    """Final kappa t fields of the stations, from the raw ones of the throw batches.
+    """Add the final kappa t fields to the stations, from the raw ones of the throw batches.
 
     Parameters
     ----------
@@ -141,11 +141,11 @@ def summarise_degradation(faults: pd.DataFrame, stations: pd.DataFrame) -> pd.Da
     f["kappa_t_err_m2"] = np.where(measured, k_med * at(sd_med), np.nan)
     f["kappa_t_scatter"] = np.where(measured, at(mad), np.nan)
     f["kappa_t_bound_m2"] = np.where(upper, at(ub), np.where(lower, at(lb), np.nan))
-    f["kappa_t_n"] = np.where(measured, n_ok, np.where(upper, n_un, np.where(lower, n_br, 0))).astype(np.int64)
+    f["kappa_t_n"] = np.where(measured, n_ok, np.where(upper, n_un, np.where(lower, n_br, 0))).astype(
+        np.int64
+    )
     f["kappa_t_flag"] = np.where(
         measured, "measured", np.where(upper, "upper_bound", np.where(lower, "lower_bound", "none"))
     ).astype(object)
-    f["kappa_t_rank"] = (
-        pd.Series(f["kappa_t_m2"].to_numpy(dtype=float)).rank(method="min").to_numpy()
-    )
+    f["kappa_t_rank"] = pd.Series(f["kappa_t_m2"].to_numpy(dtype=float)).rank(method="min").to_numpy()
     return f

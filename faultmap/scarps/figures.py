@@ -43,7 +43,11 @@ def degradation_figure(faults, stations, *, n_largest: int = 4, pixel_size_m: fl
     """
     fig = Figure(figsize=(11.0, 4.6))
     ax1, ax2 = fig.subplots(1, 2)
-    mt = faults["max_throw_m"].to_numpy(dtype=float) if "max_throw_m" in faults else np.full(len(faults), np.nan)
+    mt = (
+        faults["max_throw_m"].to_numpy(dtype=float)
+        if "max_throw_m" in faults
+        else np.full(len(faults), np.nan)
+    )
     order = np.argsort(-np.nan_to_num(mt, nan=-np.inf))[: int(n_largest)]
     lim = None if pixel_size_m is None else (0.5 * float(pixel_size_m)) ** 2
     fid_all = stations["fault_id"].to_numpy()
@@ -51,7 +55,16 @@ def degradation_figure(faults, stations, *, n_largest: int = 4, pixel_size_m: fl
     kt = stations["kappa_t_m2"].to_numpy(dtype=float)
     ub = stations["kappa_t_bound_m2"].to_numpy(dtype=float)
     dist = stations["dist_m"].to_numpy(dtype=float)
-    colours = ["tab:blue", "tab:orange", "tab:green", "tab:red", "tab:purple", "tab:brown", "tab:pink", "tab:olive"]
+    colours = [
+        "tab:blue",
+        "tab:orange",
+        "tab:green",
+        "tab:red",
+        "tab:purple",
+        "tab:brown",
+        "tab:pink",
+        "tab:olive",
+    ]
     any_point = False
     for k, i in enumerate(order):
         fid = faults["fault_id"].to_numpy()[i]
@@ -63,8 +76,15 @@ def degradation_figure(faults, stations, *, n_largest: int = 4, pixel_size_m: fl
             ax1.plot(dist[okm] / 1e3, kt[okm], "o", ms=3, color=c, label=f"fault {fid}")
             any_point = True
         if um.any():
-            ax1.plot(dist[um] / 1e3, ub[um], "v", ms=3, color=c, alpha=0.5,
-                     label=None if okm.any() else f"fault {fid} (upper bounds)")
+            ax1.plot(
+                dist[um] / 1e3,
+                ub[um],
+                "v",
+                ms=3,
+                color=c,
+                alpha=0.5,
+                label=None if okm.any() else f"fault {fid} (upper bounds)",
+            )
             any_point = True
     if lim is not None:
         ax1.axhline(lim, color="0.4", lw=0.8, ls="--", label="resolution limit")
@@ -77,16 +97,38 @@ def degradation_figure(faults, stations, *, n_largest: int = 4, pixel_size_m: fl
         ax1.legend(fontsize=7, loc="best")
     else:
         ax1.text(0.5, 0.5, "no station with a fitted scarp", transform=ax1.transAxes, ha="center")
-    fl = faults["kappa_t_flag"].to_numpy(dtype=object) if "kappa_t_flag" in faults else np.full(len(faults), "none")
-    fk = faults["kappa_t_m2"].to_numpy(dtype=float) if "kappa_t_m2" in faults else np.full(len(faults), np.nan)
-    fe = faults["kappa_t_err_m2"].to_numpy(dtype=float) if "kappa_t_err_m2" in faults else np.full(len(faults), np.nan)
-    fb = faults["kappa_t_bound_m2"].to_numpy(dtype=float) if "kappa_t_bound_m2" in faults else np.full(len(faults), np.nan)
+    fl = (
+        faults["kappa_t_flag"].to_numpy(dtype=object)
+        if "kappa_t_flag" in faults
+        else np.full(len(faults), "none")
+    )
+    fk = (
+        faults["kappa_t_m2"].to_numpy(dtype=float) if "kappa_t_m2" in faults else np.full(len(faults), np.nan)
+    )
+    fe = (
+        faults["kappa_t_err_m2"].to_numpy(dtype=float)
+        if "kappa_t_err_m2" in faults
+        else np.full(len(faults), np.nan)
+    )
+    fb = (
+        faults["kappa_t_bound_m2"].to_numpy(dtype=float)
+        if "kappa_t_bound_m2" in faults
+        else np.full(len(faults), np.nan)
+    )
     m = (fl == "measured") & np.isfinite(mt) & (mt > 0)
     u = (fl == "upper_bound") & np.isfinite(mt) & (mt > 0) & np.isfinite(fb)
     lo = (fl == "lower_bound") & np.isfinite(mt) & (mt > 0) & np.isfinite(fb)
     if m.any():
-        ax2.errorbar(mt[m], fk[m], yerr=np.nan_to_num(fe[m]), fmt="o", ms=4, color="tab:blue", lw=0.8,
-                     label="measured (\u00b11\u03c3)")
+        ax2.errorbar(
+            mt[m],
+            fk[m],
+            yerr=np.nan_to_num(fe[m]),
+            fmt="o",
+            ms=4,
+            color="tab:blue",
+            lw=0.8,
+            label="measured (\u00b11\u03c3)",
+        )
     if u.any():
         ax2.plot(mt[u], fb[u], "v", ms=5, color="tab:gray", label="upper bound (fresher than)")
     if lo.any():

@@ -71,7 +71,11 @@ def resolution_codes(kt_m2, kt_se_m2, *, pixel_size_m, offset_m, offset_se_m, rm
     bound = np.full(kt.shape, np.nan)
     with np.errstate(invalid="ignore"):
         no_scarp = ~(np.abs(offset_m) > 3.0 * offset_se_m) | ~(np.abs(offset_m) > 3.0 * noise_m)
-        poor = ~np.isfinite(kt) | ~np.isfinite(se) | (rmse_m > np.maximum(2.0 * noise_m, 0.05 * np.abs(offset_m)))
+        poor = (
+            ~np.isfinite(kt)
+            | ~np.isfinite(se)
+            | (rmse_m > np.maximum(2.0 * noise_m, 0.05 * np.abs(offset_m)))
+        )
         broad = 3.0 * np.sqrt(np.maximum(kt, 0.0)) * 2.0 > window_m
         small = (np.sqrt(np.maximum(kt, 0.0)) < RESOLVED_SQRT_KT_PX * p) | (kt < 2.0 * se)
     code[small] = 1
@@ -85,7 +89,7 @@ def resolution_codes(kt_m2, kt_se_m2, *, pixel_size_m, offset_m, offset_se_m, rm
 
 
 def _window_bins(W):
-    """Indices of stations grouped by window size (ratio under ``_W_GROWTH`` within a group)."""
+    """Group station indices by window size (ratio under ``_W_GROWTH`` within a group)."""
     key = np.floor(np.log(np.maximum(W, 1)) / np.log(_W_GROWTH)).astype(np.int64)
     order = np.argsort(key, kind="stable")
     ks = key[order]
@@ -178,14 +182,16 @@ class DegradationCollector:
     """
 
     def __init__(self, n: int, *, step_m: float, pixel_size_m: float, n_events: int = 1):
+        """Prepare the columns of ``n`` stations (NaN until a matrix fills them)."""
         self.out = {k: np.full(n, np.nan) for k in RAW_COLUMNS}
         self.kw = dict(step_m=step_m, pixel_size_m=pixel_size_m, n_events=n_events)
 
     def __call__(self, sel, Z, fits) -> None:
+        """Fit the stations ``sel`` of one sample matrix and store their columns."""
         r = station_degradation(Z, fits, **self.kw)
         for k in RAW_COLUMNS:
             self.out[k][sel] = r[k]
 
     def result(self) -> dict:
-        """The raw columns, one value per station (NaN where not fitted)."""
+        """Return the raw columns, one value per station (NaN where not fitted)."""
         return self.out

@@ -268,7 +268,7 @@ def _measure_on_window(dem, st: StationSet, H, lim_m, lim_p, params, box, window
 
 
 def _degradation_collector(n, params):
-    """The scarp degradation fit on the same profiles (faultmap.scarps), or None when switched off."""
+    """Return the scarp degradation fit on the same profiles (faultmap.scarps), or None when switched off."""
     if not getattr(params, "degradation", False):
         return None
     return DegradationCollector(

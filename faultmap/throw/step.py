@@ -60,11 +60,11 @@ from faultmap.engine import old_objects_frozen
 from faultmap.errors import CRSError, InputError, ParameterError
 from faultmap.numerics import jit
 from faultmap.scarps.fault_degradation import STATION_KT_COLUMNS, station_kappa_t, summarise_degradation
+from faultmap.throw.batches import RAW_COLUMNS as _RAW_COLUMNS  # profile fits and kappa t
 from faultmap.throw.batches import _raw_frame, _side_signs_for, plan_batches, run_batch
 from faultmap.throw.fault_summaries import summarise_faults
 from faultmap.throw.linkage import linkage_zones
 from faultmap.throw.params import ThrowParams, resolve_params
-from faultmap.throw.batches import RAW_COLUMNS as _RAW_COLUMNS  # profile fits and kappa t
 from faultmap.throw.stations import StationSet, place_stations
 from faultmap.traces.conditioning import _ids
 

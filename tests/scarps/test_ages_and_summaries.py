@@ -23,18 +23,22 @@ from faultmap.scarps.fault_degradation import station_kappa_t, summarise_degrada
 
 
 def _stations(rows):
-    df = pd.DataFrame(rows, columns=["fault_id", "dist_m", "status", "kt_m2", "kt_se_m2", "kt_bound_m2", "kt_code"])
+    df = pd.DataFrame(
+        rows, columns=["fault_id", "dist_m", "status", "kt_m2", "kt_se_m2", "kt_bound_m2", "kt_code"]
+    )
     df["kt_rmse_m"] = 0.01
     return station_kappa_t(df)
 
 
 def test_station_fields_follow_the_throw_status_and_the_fit_code():
-    st = _stations([
-        (1, 0.0, "ok", 10.0, 1.0, np.nan, 0),
-        (1, 10.0, "poor_fit", 12.0, 1.0, np.nan, 0),
-        (1, 20.0, "ok", 0.1, 0.2, 3.0, 1),
-        (1, 30.0, "ok", 50.0, 1.0, 50.0, 2),
-    ])
+    st = _stations(
+        [
+            (1, 0.0, "ok", 10.0, 1.0, np.nan, 0),
+            (1, 10.0, "poor_fit", 12.0, 1.0, np.nan, 0),
+            (1, 20.0, "ok", 0.1, 0.2, 3.0, 1),
+            (1, 30.0, "ok", 50.0, 1.0, 50.0, 2),
+        ]
+    )
     assert st["kappa_t_flag"].tolist() == ["ok", "not_fitted", "unresolved", "broad"]
     assert st["kappa_t_m2"].iloc[0] == 10.0 and np.isnan(st["kappa_t_m2"].iloc[1:]).all()
     assert np.isnan(st["kappa_t_bound_m2"].iloc[0]) and st["kappa_t_bound_m2"].iloc[2] == 3.0
@@ -42,7 +46,9 @@ def test_station_fields_follow_the_throw_status_and_the_fit_code():
 
 def test_fault_summary_median_rank_and_bounds():
     rows = []
-    for d, kt in enumerate([10.0, 11.0, 9.0, 10.5, 300.0]):  # one station spoilt by a fan: the median ignores it
+    for d, kt in enumerate(
+        [10.0, 11.0, 9.0, 10.5, 300.0]
+    ):  # one station spoilt by a fan: the median ignores it
         rows.append((1, d * 10.0, "ok", kt, 0.5, np.nan, 0))
     for d, kt in enumerate([40.0, 42.0, 38.0]):
         rows.append((2, d * 10.0, "ok", kt, 2.0, np.nan, 0))
@@ -86,15 +92,17 @@ def test_kappa_range_and_calibration():
 
 
 def test_fault_ages_with_a_calibration_scarp_keep_the_order():
-    f = pd.DataFrame({
-        "fault_id": [1, 2, 3],
-        "kappa_t_m2": [24.0, 48.0, np.nan],
-        "kappa_t_err_m2": [1.0, 2.0, np.nan],
-        "kappa_t_flag": ["measured", "measured", "upper_bound"],
-        "kappa_t_bound_m2": [np.nan, np.nan, 3.0],
-        "surface_age_ka": [12.0, np.nan, np.nan],
-        "surface_age_err_ka": [0.5, np.nan, np.nan],
-    })
+    f = pd.DataFrame(
+        {
+            "fault_id": [1, 2, 3],
+            "kappa_t_m2": [24.0, 48.0, np.nan],
+            "kappa_t_err_m2": [1.0, 2.0, np.nan],
+            "kappa_t_flag": ["measured", "measured", "upper_bound"],
+            "kappa_t_bound_m2": [np.nan, np.nan, 3.0],
+            "surface_age_ka": [12.0, np.nan, np.nan],
+            "surface_age_err_ka": [0.5, np.nan, np.nan],
+        }
+    )
     out, rec = fault_ages(f, calibration_fault_id=1)
     assert out["morph_age_ka"].iloc[0] == pytest.approx(12.0, rel=0.03)
     assert out["morph_age_ka"].iloc[1] == pytest.approx(24.0, rel=0.03)
@@ -108,11 +116,20 @@ def test_fault_ages_with_a_calibration_scarp_keep_the_order():
 
 def test_hazard_slip_rate_falls_back_on_the_morphologic_age():
     line = LineString([(0, 0), (0, 10000)])
-    faults = gpd.GeoDataFrame({
-        "fault_id": [1, 2], "dip_deg": [60.0, 60.0], "active": [True, True],
-        "surface_age_ka": [10.0, np.nan], "max_throw_m": [5.0, 5.0], "max_throw_err_m": [0.2, 0.2],
-        "morph_age_ka": [99.0, 20.0], "morph_age_err_ka": [2.0, 2.0],
-    }, geometry=[line, line], crs="EPSG:32633")
+    faults = gpd.GeoDataFrame(
+        {
+            "fault_id": [1, 2],
+            "dip_deg": [60.0, 60.0],
+            "active": [True, True],
+            "surface_age_ka": [10.0, np.nan],
+            "max_throw_m": [5.0, 5.0],
+            "max_throw_err_m": [0.2, 0.2],
+            "morph_age_ka": [99.0, 20.0],
+            "morph_age_err_ka": [2.0, 2.0],
+        },
+        geometry=[line, line],
+        crs="EPSG:32633",
+    )
     table, warns = slip_rates(faults)
     t = table.set_index("fault_id")
     assert t.loc[1, "age_used_ka"] == 10.0 and t.loc[1, "age_source"] == "given"
@@ -125,8 +142,10 @@ def test_hazard_slip_rate_falls_back_on_the_morphologic_age():
 def test_figure_draws(tmp_path):
     from faultmap.scarps.figures import degradation_figure
 
-    st = _stations([(1, d * 10.0, "ok", 10.0 + d, 0.5, np.nan, 0) for d in range(5)]
-                   + [(2, d * 10.0, "ok", 0.2, 0.3, 2.5, 1) for d in range(4)])
+    st = _stations(
+        [(1, d * 10.0, "ok", 10.0 + d, 0.5, np.nan, 0) for d in range(5)]
+        + [(2, d * 10.0, "ok", 0.2, 0.3, 2.5, 1) for d in range(4)]
+    )
     f = summarise_degradation(pd.DataFrame({"fault_id": [1, 2], "max_throw_m": [10.0, 3.0]}), st)
     fig = degradation_figure(f, st, pixel_size_m=5.0)
     fig.savefig(tmp_path / "d.png", dpi=60)
@@ -136,12 +155,20 @@ def test_figure_draws(tmp_path):
 def test_report_section_lists_kappa_t_and_ages():
     from faultmap.report.sections import build_section
 
-    faults = pd.DataFrame({
-        "fault_id": [1, 2, 3], "max_throw_m": [10.0, 20.0, 5.0], "kappa_t_m2": [30.0, 8.0, np.nan],
-        "kappa_t_err_m2": [2.0, 1.0, np.nan], "kappa_t_n": [20, 15, 0], "kappa_t_rank": [2.0, 1.0, np.nan],
-        "kappa_t_flag": ["measured", "measured", "upper_bound"], "morph_age_ka": [15.0, 4.0, np.nan],
-        "morph_age_p16_ka": [12.0, 3.0, np.nan], "morph_age_p84_ka": [18.0, 5.0, np.nan],
-    })
+    faults = pd.DataFrame(
+        {
+            "fault_id": [1, 2, 3],
+            "max_throw_m": [10.0, 20.0, 5.0],
+            "kappa_t_m2": [30.0, 8.0, np.nan],
+            "kappa_t_err_m2": [2.0, 1.0, np.nan],
+            "kappa_t_n": [20, 15, 0],
+            "kappa_t_rank": [2.0, 1.0, np.nan],
+            "kappa_t_flag": ["measured", "measured", "upper_bound"],
+            "morph_age_ka": [15.0, 4.0, np.nan],
+            "morph_age_p16_ka": [12.0, 3.0, np.nan],
+            "morph_age_p84_ka": [18.0, 5.0, np.nan],
+        }
+    )
     s = build_section("throw", {"faults": faults}, {"kappa_m2_kyr_used": "2 (16-84 %: 2-2)"})
     facts = dict(s["facts"])
     assert facts["faults by scarp degradation (kappa t)"] == "measured 2, upper_bound 1"

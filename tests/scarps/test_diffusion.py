@@ -77,7 +77,9 @@ def test_maximum_slope_relation():
     kt = 4.0 / (math.pi * 0.45**2)
     assert kt == pytest.approx(6.2876, abs=1e-4)
     xf = np.linspace(-30, 30, 6001)
-    assert np.max(np.gradient(0.05 * xf + 2.0 * erf(xf / (2.0 * math.sqrt(kt))), xf)) == pytest.approx(0.5, rel=1e-4)
+    assert np.max(np.gradient(0.05 * xf + 2.0 * erf(xf / (2.0 * math.sqrt(kt))), xf)) == pytest.approx(
+        0.5, rel=1e-4
+    )
     x = np.linspace(-30, 30, 121)
     z = 0.05 * x + 2.0 * erf(x / (2.0 * math.sqrt(kt)))
     r = fit_diffusion_profiles(x, z[None, :], s0_m=np.array([3.0]), robust=False)

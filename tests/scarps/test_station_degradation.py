@@ -28,8 +28,18 @@ EXTENT = 800.0
 
 
 def _write(path, z, px, y0=EXTENT):
-    with rasterio.open(path, "w", driver="GTiff", width=z.shape[1], height=z.shape[0], count=1, dtype="float32",
-                       crs=CRS, transform=from_origin(0.0, y0, px, px), nodata=-9999.0) as ds:
+    with rasterio.open(
+        path,
+        "w",
+        driver="GTiff",
+        width=z.shape[1],
+        height=z.shape[0],
+        count=1,
+        dtype="float32",
+        crs=CRS,
+        transform=from_origin(0.0, y0, px, px),
+        nodata=-9999.0,
+    ) as ds:
         ds.write(np.asarray(z, dtype="float32"), 1)
     return path
 
@@ -48,8 +58,11 @@ def _erf_scene(tmp_path, *, px, kappa_t, offset=4.0, noise=0.02, seed=0):
     z += np.random.default_rng(seed).normal(0.0, noise, z.shape)
     path = _write(tmp_path / f"erf_{px:g}_{kappa_t:g}.tif", z, px)
     dip_dir = math.degrees(math.atan2(nrm[0], nrm[1])) % 360.0
-    faults = gpd.GeoDataFrame({"fault_id": [1], "dip_deg": [60.0], "dip_dir_deg": [dip_dir]},
-                              geometry=[LineString([p0, p1])], crs=CRS)
+    faults = gpd.GeoDataFrame(
+        {"fault_id": [1], "dip_deg": [60.0], "dip_dir_deg": [dip_dir]},
+        geometry=[LineString([p0, p1])],
+        crs=CRS,
+    )
     return faults, open_dem(str(path))
 
 
@@ -112,14 +125,31 @@ def test_faults_degraded_by_different_kappa_t_rank_like_the_truth(tmp_path):
     rows = []
     for i, kt in enumerate(truth_kt):
         x = 500.0 + 700.0 * i + rng.uniform(-50, 50)
-        rows.append({"geometry": LineString([(x, 500.0), (x + rng.uniform(-80, 80), 3500.0)]), "dip_deg": 60.0,
-                     "dip_dir_deg": 90.0, "max_throw_m": rng.uniform(8.0, 20.0), "kappa_t_m2": kt,
-                     "profile_shape": "plateau", "plateau_frac": 0.6, "fault_id": i + 1})
+        rows.append(
+            {
+                "geometry": LineString([(x, 500.0), (x + rng.uniform(-80, 80), 3500.0)]),
+                "dip_deg": 60.0,
+                "dip_dir_deg": 90.0,
+                "max_throw_m": rng.uniform(8.0, 20.0),
+                "kappa_t_m2": kt,
+                "profile_shape": "plateau",
+                "plateau_frac": 0.6,
+                "fault_id": i + 1,
+            }
+        )
     gdf = gpd.GeoDataFrame(rows, crs=CRS)
     px = 4.0
-    dem, transform, truth = build_dem(gdf, origin_xy=(0.0, 4000.0), pixel_size_m=px, shape=(1000, 1300),
-                                      regional_slope_deg=2.0, regional_slope_azimuth_deg=100.0, relief_m=2.0,
-                                      relief_wavelength_m=1500.0, seed=11)
+    dem, transform, truth = build_dem(
+        gdf,
+        origin_xy=(0.0, 4000.0),
+        pixel_size_m=px,
+        shape=(1000, 1300),
+        regional_slope_deg=2.0,
+        regional_slope_azimuth_deg=100.0,
+        relief_m=2.0,
+        relief_wavelength_m=1500.0,
+        seed=11,
+    )
     assert np.allclose(truth.faults["kappa_t_m2"], truth_kt)
     dem = dem + rng.normal(0.0, 0.05, dem.shape).astype(np.float32)
     path = _write(tmp_path / "scene.tif", dem, px, y0=4000.0)
