@@ -163,3 +163,31 @@ def test_faults_degraded_by_different_kappa_t_rank_like_the_truth(tmp_path):
     assert 0.5 <= ratio <= 2.0
     ranks = res.faults.set_index("fault_id")["kappa_t_rank"].reindex(truth.faults["fault_id"]).to_numpy()
     assert spearmanr(ranks, truth_kt).statistic >= 0.8
+
+
+def test_throw_tool_writes_kappa_t_ages_and_the_figure(tmp_path):
+    # through the tool: kappa t in both layers, morphologic ages with the given regional kappa (age = kappa t /
+    # kappa, Hanks et al. 1984: 40 m^2 / 2 m^2/kyr = 20 ka), the figure and the records
+    from faultmap.runner import run_tools
+
+    faults, dem = _erf_scene(tmp_path, px=2.5, kappa_t=40.0)
+    traces = tmp_path / "traces.gpkg"
+    gpd.GeoDataFrame({"name": ["Velmo"]}, geometry=faults.geometry, crs=CRS).to_file(traces, layer="traces")
+    res = run_tools(
+        ["throw"],
+        inputs={"faults": traces, "dem": dem.path},
+        out=tmp_path / "out.gpkg",
+        figures=tmp_path / "fig",
+        params={"throw": {"kappa_m2_kyr": 2.0, "kappa_min_m2_kyr": 1.0, "kappa_max_m2_kyr": 4.0}},
+        quiet=True,
+    )
+    f = gpd.read_file(tmp_path / "out.gpkg", layer="faults").iloc[0]
+    st = gpd.read_file(tmp_path / "out.gpkg", layer="throw_stations")
+    assert {"kappa_t_m2", "kappa_t_err_m2", "kappa_t_flag"} <= set(st.columns)
+    assert f["kappa_t_flag"] == "measured" and f["kappa_t_m2"] == pytest.approx(40.0, rel=0.1)
+    assert f["morph_age_ka"] == pytest.approx(20.0, rel=0.12)
+    assert f["morph_age_p16_ka"] < f["morph_age_ka"] < f["morph_age_p84_ka"]
+    assert f["morph_age_basis"].startswith("morphologic, regional kappa 2")
+    assert (tmp_path / "fig" / "throw_degradation.png").exists()
+    info = dict(zip(res.run_info["key"], res.run_info["value"], strict=True))
+    assert "throw.kappa_m2_kyr_used" in info and "throw.kappa_t_faults" in info
