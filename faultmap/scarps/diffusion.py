@@ -174,7 +174,7 @@ def fit_diffusion_profiles(
     *,
     s0_m,
     n_events: int = 1,
-    iterations: int = 8,
+    iterations: int = 6,
     robust: bool = True,
     tuning: float = 4.685,
     x0_max_m=None,
@@ -256,7 +256,7 @@ def fit_diffusion_profiles(
         return F, dF, u, r
 
     F, dF, u, r = evaluate(p)
-    reweight = {2, 5} if robust else set()
+    reweight = {2, 4} if robust else set()
     for it in range(int(iterations)):
         if it in reweight:
             W, _ = _tukey(r, W0, tuning)

@@ -506,7 +506,7 @@ TOOL = Tool(
             bool,
             True,
             "Fit the diffusion form of a degraded scarp (kappa t) to every station's profile, on the samples the "
-            "throw fit already read (about doubles the time of the throw fits).",
+            "throw fit already read (adds about three quarters to the time of the throw step).",
         ),
         Param(
             "n_events",
