@@ -41,6 +41,25 @@ TOOL_LAYERS = {
 
 _TOP_N = 10
 
+#: Most rows a per-item table of the page shows (scenarios, screened faults); the rest are in the
+#: GeoPackage layer the note names. Keeps the page readable and its size bounded at any number of faults.
+_MAX_TABLE_ROWS = 50
+
+
+def _largest(df, column: str, layer: str):
+    """Return the ``_MAX_TABLE_ROWS`` rows of ``df`` with the largest ``column`` and a note on the rest."""
+    if len(df) <= _MAX_TABLE_ROWS:
+        return df, ""
+    key = _finite(df[column]) if column in df.columns else None
+    if key is None:
+        top = df.head(_MAX_TABLE_ROWS)
+    else:
+        top = df.assign(_key=key).sort_values("_key", ascending=False, na_position="last").head(_MAX_TABLE_ROWS)
+        top = top.drop(columns="_key")
+    note = (f"The {_MAX_TABLE_ROWS} of {len(df)} with the largest {column}; all are in the GeoPackage "
+            f"layer '{layer}'.")
+    return top, note
+
 
 def table(caption: str, headers: list[str], rows: list[list[str]], *, align: str = "", note: str = "") -> dict:
     """Make a table for the page.
@@ -380,7 +399,8 @@ def _hazard(s: dict, layers: Mapping, rec: Mapping) -> None:
         s["facts"].append(("surface-rupture zones", fmt_num(len(zones))))
     sc = _layer(layers, "rupture_scenarios")
     if sc is not None:
-        _add_table(s, "Magnitude per rupture scenario", sc, [
+        sc, note = _largest(sc, "mag_preferred", "rupture_scenarios")
+        _add_table(s, "Magnitude per rupture scenario", sc, note=note, cols=[
             ("scenario_id", "scenario", "r", lambda r: fmt_num(_v(r, "scenario_id"))),
             ("kind", "kind", "l", lambda r: fmt_num(_v(r, "kind"))),
             ("fault_ids", "faults", "l", lambda r: fmt_num(_v(r, "fault_ids"))),
@@ -398,11 +418,12 @@ def _hazard(s: dict, layers: Mapping, rec: Mapping) -> None:
             rows = [[fmt_num(r["scenario_id"])] + [fmt_pm(r[c], _v(r, c + "_sigma"), sig=3) for c in rel]
                     for _, r in sc.iterrows()]
             s["tables"].append(table("Mw by relation (\u00b1 1\u03c3 of the relation)", ["scenario"] + [c[4:] for c in rel],
-                                     rows, align="r" * (len(rel) + 1)))
+                                     rows, align="r" * (len(rel) + 1), note=note))
     faults = _layer(layers, "faults")
     if _has(faults, "hazard_screened"):
-        scr = faults[_truthy(faults["hazard_screened"])]
-        _add_table(s, "Slip rate and recurrence per screened fault (central value [16th, 84th percentile])", scr, [
+        scr, note = _largest(faults[_truthy(faults["hazard_screened"])], "mag_preferred", "faults")
+        _add_table(s, "Slip rate and recurrence per screened fault (central value [16th, 84th percentile])", scr,
+                   note=note, cols=[
             ("fault_id", "fault", "r", lambda r: fmt_num(_v(r, "fault_id"))),
             ("name", "name", "l", lambda r: fmt_num(_v(r, "name"))),
             ("throw_used_m", "throw used (m)", "r", lambda r: fmt_num(_v(r, "throw_used_m"))),

@@ -14,6 +14,7 @@ from html.parser import HTMLParser
 from importlib import resources
 
 import matplotlib.image as mpimg
+import numpy as np
 import pytest
 from conftest import png_bytes, small_layers, small_run_info
 
@@ -268,3 +269,30 @@ def test_counts_print_whole():
     _hazard(section, {}, {"hazard.n_screened": "4", "n_screened": "4", "n_scenarios": "7"})
     facts = dict(section["facts"])
     assert facts["faults screened"] == "4" and facts["rupture scenarios"] == "7"
+
+
+def test_hazard_tables_show_the_largest_and_say_how_many_were_left_out():
+    """At regional size the per-scenario and per-fault tables stay bounded (issue: figures and pages at any size)."""
+    import pandas as pd
+
+    from faultmap.report.sections import _MAX_TABLE_ROWS, build_section
+
+    n = _MAX_TABLE_ROWS + 70
+    mags = np.linspace(5.0, 7.0, n)[::-1].copy()
+    np.random.default_rng(1).shuffle(mags)
+    sc = pd.DataFrame({"scenario_id": np.arange(1, n + 1), "kind": "single", "fault_ids": "1",
+                       "mag_preferred": mags, "mag_preferred_sigma": 0.3, "mag_wc94_srl_normal": mags,
+                       "mag_wc94_srl_normal_sigma": 0.34})
+    faults = pd.DataFrame({"fault_id": np.arange(1, n + 1), "name": "F", "hazard_screened": True,
+                           "mag_preferred": mags, "slip_rate_vert_mm_yr": 0.1})
+    s = build_section("hazard", {"rupture_scenarios": sc, "faults": faults}, {})
+    by_caption = {t["caption"]: t for t in s["tables"]}
+    per_scenario = by_caption["Magnitude per rupture scenario"]
+    assert len(per_scenario["rows"]) == _MAX_TABLE_ROWS
+    assert f"of {n}" in per_scenario["note"] and "rupture_scenarios" in per_scenario["note"]
+    # the largest magnitudes are the ones shown: the smallest shown is the 50th largest of the input
+    shown = sorted(float(r[per_scenario["headers"].index("Mw preferred \u00b1 1\u03c3")].split()[0])
+                   for r in per_scenario["rows"])
+    assert shown[0] == pytest.approx(np.sort(mags)[-_MAX_TABLE_ROWS], abs=0.01)
+    per_fault = [t for c, t in by_caption.items() if c.startswith("Slip rate and recurrence")][0]
+    assert len(per_fault["rows"]) == _MAX_TABLE_ROWS and f"of {n}" in per_fault["note"]
