@@ -44,7 +44,7 @@ def _write(path, z, px, y0=EXTENT):
     return path
 
 
-def _erf_scene(tmp_path, *, px, kappa_t, offset=4.0, noise=0.02, seed=0):
+def _erf_scene(tmp_path, *, px, kappa_t, offset=4.0, noise=0.02, seed=0, events=1):
     """A straight oblique trace; across it the diffused step of ``offset`` on a surface of slope 0.03."""
     p0, p1 = np.array([330.0, 80.0]), np.array([450.0, 720.0])
     t = (p1 - p0) / np.linalg.norm(p1 - p0)
@@ -54,9 +54,12 @@ def _erf_scene(tmp_path, *, px, kappa_t, offset=4.0, noise=0.02, seed=0):
     yc = EXTENT - (np.arange(n) + 0.5) * px
     X, Y = np.meshgrid(xc, yc)
     d = (X - p0[0]) * nrm[0] + (Y - p0[1]) * nrm[1]
-    z = 400.0 - 0.03 * d - 0.5 * offset * erf(d / (2.0 * math.sqrt(kappa_t)))
+    # n equal events at ages t k / n superpose (linear diffusion; checked against finite differences in
+    # test_diffusion.py)
+    shape = sum(erf(d / (2.0 * math.sqrt(kappa_t * k / events))) for k in range(1, events + 1)) / events
+    z = 400.0 - 0.03 * d - 0.5 * offset * shape
     z += np.random.default_rng(seed).normal(0.0, noise, z.shape)
-    path = _write(tmp_path / f"erf_{px:g}_{kappa_t:g}.tif", z, px)
+    path = _write(tmp_path / f"erf_{px:g}_{kappa_t:g}_{events}.tif", z, px)
     dip_dir = math.degrees(math.atan2(nrm[0], nrm[1])) % 360.0
     faults = gpd.GeoDataFrame(
         {"fault_id": [1], "dip_deg": [60.0], "dip_dir_deg": [dip_dir]},
@@ -191,3 +194,13 @@ def test_throw_tool_writes_kappa_t_ages_and_the_figure(tmp_path):
     assert (tmp_path / "fig" / "throw_degradation.png").exists()
     info = dict(zip(res.run_info["key"], res.run_info["value"], strict=True))
     assert "throw.kappa_m2_kyr_used" in info and "throw.kappa_t_faults" in info
+
+
+def test_scarp_of_several_events(tmp_path):
+    # a scarp grown in 3 equal events (oldest kappa t 90 m^2): the 3-event form finds the oldest surface's
+    # kappa t; the one-event form reads a younger one
+    faults, dem = _erf_scene(tmp_path, px=2.5, kappa_t=90.0, offset=6.0, events=3)
+    f3 = measure_throw(faults, dem, n_events=3).faults.iloc[0]
+    f1 = measure_throw(faults, dem, n_events=1).faults.iloc[0]
+    assert f3["kappa_t_m2"] == pytest.approx(90.0, rel=0.1)
+    assert f1["kappa_t_m2"] < 0.8 * 90.0
