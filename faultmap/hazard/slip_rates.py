@@ -125,7 +125,7 @@ def _draw_chunks(
 
 #: Draws per fault of the slip-rate Monte Carlo when the user gives none: all of them up to this many
 #: values in total, then fewer per fault (never under MIN_AUTO_DRAWS), so the cost stays linear.
-AUTO_DRAW_BUDGET = 20_000_000
+AUTO_DRAW_BUDGET = 8_000_000
 MAX_AUTO_DRAWS = 10_000
 MIN_AUTO_DRAWS = 1_000
 
@@ -133,7 +133,7 @@ MIN_AUTO_DRAWS = 1_000
 def draws_per_fault(n_faults: int) -> int:
     """Monte Carlo draws per fault for ``n_faults`` screened faults (the rule used without ``n_draws``).
 
-    10 000 draws up to 2 000 faults, then ``AUTO_DRAW_BUDGET / n_faults``, at least 1 000. The
+    10 000 draws up to 800 faults, then ``AUTO_DRAW_BUDGET / n_faults`` (8e6 / n), at least 1 000. The
     percentiles' Monte Carlo precision is reported with :func:`percentile_rank_se`.
     """
     n = max(int(n_faults), 1)

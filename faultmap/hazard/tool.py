@@ -169,7 +169,7 @@ TOOL = Tool(
         Param("dip_range_deg", float, 10.0, "Dips drawn uniformly within +- this range in the Monte Carlo.",
               unit="deg", min=0.0, max=45.0),
         Param("n_draws", int, None, "Monte Carlo draws per fault, used exactly when given. Default: 10000 up "
-              "to 2000 screened faults, then 2e7 / n (at least 1000); the precision of the percentiles' levels "
+              "to 800 screened faults, then 8e6 / n (at least 1000); the precision of the percentiles' levels "
               "goes to run_info (percentile_level_se_p16).", min=100, max=1_000_000, nullable=True),
         Param("seed", int, 0, "Random seed of the Monte Carlo.", min=0),
         Param("max_age_ka", float, 5000.0,
