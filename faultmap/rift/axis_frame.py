@@ -65,6 +65,25 @@ def axis_point_direction(axis: LineString, along_m: np.ndarray, *, smooth_m: flo
     return at(s), tan
 
 
+def _locate_on_polyline(xy, t, cum, px, py) -> np.ndarray:
+    """Distance along the polyline of the nearest polyline point to each point, m.
+
+    The nearest segment of each point comes from a spatial index of the segments (n log m for n
+    points and m segments); the distance is then the projection on it, clipped to the segment. The
+    same values as ``shapely.line_locate_point`` (to rounding), which walks every segment per point.
+    """
+    if px.size == 0:
+        return np.zeros(0)
+    segs = shapely.linestrings(np.stack([xy[:-1], xy[1:]], axis=1))
+    pts = shapely.points(px, py)
+    which, k = shapely.STRtree(segs).query_nearest(pts, all_matches=False)
+    seg_of = np.empty(px.size, dtype=np.int64)
+    seg_of[which] = k
+    slen = np.diff(cum)
+    u = (px - xy[seg_of, 0]) * t[seg_of, 0] + (py - xy[seg_of, 1]) * t[seg_of, 1]
+    return cum[seg_of] + np.clip(u, 0.0, slen[seg_of])
+
+
 def axis_coordinates(axis: LineString, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Along- and across-axis coordinates of points in a (curved) axis frame.
 
@@ -88,7 +107,7 @@ def axis_coordinates(axis: LineString, x: np.ndarray, y: np.ndarray) -> tuple[np
     xy, t, _, cum = _axis_arrays(axis)
     px = np.asarray(x, dtype=float).ravel()
     py = np.asarray(y, dtype=float).ravel()
-    s = shapely.line_locate_point(axis, shapely.points(px, py))
+    s = _locate_on_polyline(xy, t, cum, px, py)
     k = np.clip(np.searchsorted(cum, s, side="right") - 1, 0, len(t) - 1)
     q = xy[k] + t[k] * (s - cum[k])[:, None]
     dx = px - q[:, 0]

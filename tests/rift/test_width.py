@@ -472,3 +472,20 @@ def test_width_tool_beta_from_transects_and_skip_without_beta():
     assert any("lower bound" in w and "upper-crust" in w for w in ctx2.warnings)
     with pytest.raises(ParameterError):
         TOOL.run(ctx2, TOOL.resolve_params({"axis_wkt": "LINESTRING (0 0"}))
+
+
+def test_axis_locations_match_shapely_line_locate_point():
+    """The indexed nearest-segment projection gives shapely's line_locate_point (reference library)."""
+    import shapely
+    from shapely.geometry import LineString
+
+    from faultmap.rift.axis_frame import _axis_arrays, _locate_on_polyline
+
+    t = np.linspace(0.0, 1.0, 80)
+    axis = LineString(np.c_[t * 90_000.0, 6_000.0 * np.sin(5.0 * t)])  # a curved axis
+    rng = np.random.default_rng(3)
+    px, py = rng.uniform(-15_000, 105_000, 5_000), rng.uniform(-30_000, 30_000, 5_000)  # also beyond the ends
+    xy, tan, _, cum = _axis_arrays(axis)
+    got = _locate_on_polyline(xy, tan, cum, px, py)
+    want = shapely.line_locate_point(axis, shapely.points(px, py))
+    np.testing.assert_allclose(got, want, rtol=0, atol=1e-6)
