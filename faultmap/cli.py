@@ -15,7 +15,7 @@ import click
 
 from faultmap import __version__
 from faultmap.errors import FaultmapError
-from faultmap.registry import BrokenTool, Param, Tool, load_tools
+from faultmap.registry import INPUT_KINDS, BrokenTool, Param, Tool, load_tools
 
 __all__ = ["main", "build_cli", "tool_command"]
 
@@ -40,18 +40,39 @@ def _fail(exc: BaseException, state: _State) -> None:
     sys.exit(1)
 
 
+#: Said after each input's help: what an input may be (see docs/data_sources.md).
+_WHERE = "A local path, a URL (https://, s3://, gs://...) or a GDAL virtual path (/vsicurl/..., /vsizip/...)."
+
+
+def _input_key_names() -> list[str]:
+    """Input keys the command line passes on: each input kind, each vector kind's layer, DEM and CRS options."""
+    keys = []
+    for kind in INPUT_KINDS:
+        keys.append(kind)
+        if kind != "dem":
+            keys.append(f"{kind}_layer")
+    return keys + ["dem_nodata", "dem_metres_per_unit", "crs"]
+
+
 def _input_options() -> list[click.Option]:
-    """Options shared by every tool command (defined once)."""
-    return [
-        click.Option(["--faults"], type=click.Path(dir_okay=False), help="Fault traces: any vector file GDAL reads."),
-        click.Option(["--faults-layer"], help="Layer of the traces in a multi-layer file."),
-        click.Option(["--dem"], type=click.Path(dir_okay=False), help="DEM: any raster GDAL reads (projected, metric)."),
-        click.Option(["--dem-nodata"], type=float, help="DEM void value when the file declares none."),
-        click.Option(["--dem-metres-per-unit"], type=float, help="Metres per DEM elevation unit (0.3048 for a DEM stored in feet)."),
-        click.Option(["--transects"], type=click.Path(dir_okay=False), help="Transect lines (optional)."),
-        click.Option(["--transects-layer"], help="Layer of the transects."),
-        click.Option(["--study-area"], type=click.Path(dir_okay=False), help="Study-area polygons (optional)."),
-        click.Option(["--study-area-layer"], help="Layer of the study area."),
+    """Options shared by every tool command (defined once): one per input kind of the registry.
+
+    Inputs are plain text, never ``click.Path(exists=True)``: a URL or a GDAL virtual path is not a
+    local file, and the runner checks every input (existence, or that GDAL opens it) before it runs.
+    """
+    opts = []
+    for kind, text in INPUT_KINDS.items():
+        flag = "--" + kind.replace("_", "-")
+        opts.append(click.Option([flag, kind], metavar="PATH|URL", help=f"{text} {_WHERE}"))
+        if kind == "dem":
+            opts += [
+                click.Option(["--dem-nodata"], type=float, help="DEM void value when the file declares none."),
+                click.Option(["--dem-metres-per-unit"], type=float,
+                             help="Metres per DEM elevation unit (0.3048 for a DEM stored in feet)."),
+            ]
+        else:
+            opts.append(click.Option([f"{flag}-layer", f"{kind}_layer"], help=f"Layer of the {kind.replace('_', ' ')} in a multi-layer source."))
+    return opts + [
         click.Option(["--crs"], help="CRS for input layers that have none (e.g. EPSG:32633)."),
         click.Option(["--field", "fields"], multiple=True, metavar="NAME=COLUMN",
                      help="Map a conventional field (name, dip, dip_dir, active, surface_age_ka) to a column."),
@@ -135,12 +156,7 @@ def tool_command(tool: Tool | BrokenTool, state: _State) -> click.Command:
         engine = None
         try:
             given = {p.name: kw[p.name] for p in tool.params if kw.get(p.name) is not None}
-            inputs = {
-                k: kw[k]
-                for k in ("faults", "faults_layer", "dem", "dem_nodata", "dem_metres_per_unit", "transects",
-                          "transects_layer", "study_area", "study_area_layer", "crs")
-                if kw.get(k) is not None
-            }
+            inputs = {k: kw[k] for k in _input_key_names() if kw.get(k) is not None}
             if kw["workers"] is not None or kw["scheduler"] is not None or kw["threads"] is not None:
                 engine = make_engine(workers=kw["workers"], scheduler=kw["scheduler"], threads=kw["threads"])
             res = run_tools(

@@ -14,7 +14,10 @@ Three kinds of engine:
   single-threaded worker processes on this machine for the run.
 * ``scheduler`` (``scheduler="tcp://host:8786"``): connects to an existing
   Dask scheduler; every worker must be able to import faultmap and read the
-  input files at the same paths.
+  input files at the same paths (absolute local paths on shared storage, or
+  URLs). Before the first batch, :meth:`Engine.check_worker_access` asks one
+  worker to open the inputs the workers read, so a path only the client sees
+  stops the run with one line instead of failing mid-run.
 
 Dask (``pip install 'faultmap[dask]'``) is only imported for the last two.
 """
@@ -38,6 +41,7 @@ __all__ = [
     "default_threads",
     "old_objects_frozen",
     "DASK_HINT",
+    "probe_inputs",
 ]
 
 #: How to get the optional Dask dependencies.
@@ -174,6 +178,7 @@ class Engine:
             raise ParameterError(f"scheduler must be an address such as tcp://host:8786, got {scheduler!r}.")
         self.workers = None if workers is None else int(workers)
         self.scheduler = scheduler
+        self.timeout_s = float(timeout_s)
         self.threads = default_threads() if threads is None else int(threads)
         self._client = None
         self._cluster = None
@@ -245,6 +250,48 @@ class Engine:
     def client(self):
         """The ``dask.distributed.Client`` (None in-process)."""
         return self._client
+
+    # ------------------------------------------------------------------ checks
+    def check_worker_access(self, locations: dict, *, timeout_s: float = 120.0) -> None:
+        """Ask one worker to open each input it will read; stop with one line if it cannot.
+
+        Nothing to do in-process (the client's own checks hold). On Dask, one task on one worker
+        opens each location with GDAL (:func:`probe_inputs`), exactly as the batches will.
+
+        Parameters
+        ----------
+        locations : dict
+            ``{input kind: absolute path or URL}``, as the batches will carry them.
+        timeout_s : float
+            How long to wait for the worker's answer, s (opening a remote file may take a while).
+
+        Raises
+        ------
+        InputFileError
+            A worker cannot open an input; the message names it and what GDAL answered there.
+        FaultmapError
+            No worker answered.
+        """
+        if self._client is None or not locations:
+            return
+        from faultmap.errors import InputFileError
+
+        items = sorted((str(k), str(v)) for k, v in locations.items())
+        try:
+            self._client.wait_for_workers(1, timeout=self.timeout_s)
+            fut = self._client.submit(probe_inputs, items, pure=False)
+            answers = fut.result(timeout=timeout_s)
+        except Exception as exc:  # noqa: BLE001 - timeouts and lost connections alike
+            raise FaultmapError(
+                f"no Dask worker answered the input check within {self.timeout_s + timeout_s:g} s ({self.describe()}: "
+                f"{type(exc).__name__}: {' '.join(str(exc).split())}); start workers or check the scheduler."
+            ) from exc
+        for kind, location, worker, problem in answers:
+            if problem is not None:
+                raise InputFileError(
+                    f"workers cannot read {location} (input '{kind}'; on worker {worker}: {problem}): give a path "
+                    "on storage the workers share, or a URL."
+                )
 
     # ------------------------------------------------------------------ running
     def map(self, func: Callable[[Any], Any], batches: Sequence[Any], *, progress=None) -> list:
@@ -358,6 +405,47 @@ class Engine:
 
     def __exit__(self, *exc):
         self.close()
+
+
+def probe_inputs(items) -> list[tuple[str, str, str, str | None]]:
+    """Open each ``(kind, location)`` with GDAL here (what a worker runs for :meth:`Engine.check_worker_access`).
+
+    Returns
+    -------
+    list of (kind, location, worker, problem)
+        ``problem`` is None when the input opened, else GDAL's answer on one line; ``worker`` is
+        this worker's address (or the host name outside Dask).
+    """
+    import os
+    import socket
+
+    from faultmap.io.locations import RASTER_KINDS, gdal_path, location_kind, remote_options
+
+    try:
+        from dask.distributed import get_worker
+
+        where = str(get_worker().address)
+    except Exception:  # noqa: BLE001 - not on a Dask worker
+        where = socket.gethostname()
+    out = []
+    for kind, location in items:
+        problem = None
+        try:
+            if location_kind(location) == "local" and not os.path.exists(location):
+                raise FileNotFoundError(f"no such file in {os.getcwd()}" if not os.path.isabs(location) else "no such file")
+            if kind in RASTER_KINDS:
+                import rasterio
+
+                with rasterio.Env(**remote_options(location)), rasterio.open(gdal_path(location)):
+                    pass
+            else:
+                import pyogrio
+
+                pyogrio.list_layers(gdal_path(location))
+        except Exception as exc:  # noqa: BLE001 - reported to the client as text
+            problem = " ".join(str(exc).split()) or type(exc).__name__
+        out.append((kind, location, where, problem))
+    return out
 
 
 def _module_of(filename: str) -> str:

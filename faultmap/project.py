@@ -19,8 +19,11 @@ A project file looks like::
     [throw]
     station_spacing_m = 50.0
 
-Relative paths resolve against the project file's folder. Unknown keys and
-wrong types are errors that name the key and list the valid ones.
+Relative paths resolve against the project file's folder; an input may also
+be a URL (``https://...``, ``s3://...``) or a GDAL virtual path
+(``/vsicurl/...``), which is kept as it is (see :mod:`faultmap.io.locations`).
+Unknown keys and wrong types are errors that name the key and list the valid
+ones.
 """
 
 from __future__ import annotations
@@ -29,7 +32,8 @@ import sys
 from pathlib import Path
 
 from faultmap.errors import ProjectFileError
-from faultmap.registry import DEFAULT_FIELDS, BrokenTool, load_tools
+from faultmap.io.locations import absolute, location_kind
+from faultmap.registry import DEFAULT_FIELDS, INPUT_KINDS, BrokenTool, load_tools
 from faultmap.runner import INPUT_KEYS, RunResult, run_tools
 
 if sys.version_info >= (3, 11):
@@ -41,7 +45,8 @@ __all__ = ["read_project", "run_project", "OUTPUT_KEYS", "ENGINE_KEYS"]
 
 OUTPUT_KEYS = {"gpkg": str, "figures": str, "overwrite": bool, "report": bool}
 ENGINE_KEYS = {"workers": int, "scheduler": str, "threads": int, "timeout_s": float}
-_PATH_KEYS = {"faults", "dem", "transects", "study_area"}
+#: Input keys that name a file, URL or GDAL virtual path: every input kind.
+_PATH_KEYS = set(INPUT_KINDS)
 
 
 def _check_table(table, allowed: dict, where: str, path: Path) -> dict:
@@ -89,11 +94,11 @@ def read_project(path, *, tools: dict | None = None) -> dict:
             raise ProjectFileError(f"{path}: unknown key '{k}'; valid: {', '.join(valid_top)}.")
     inputs = _check_table(data.get("inputs", {}), INPUT_KEYS | {"dem_nodata": float, "dem_metres_per_unit": float}, "inputs", path)
     for k in _PATH_KEYS & set(inputs):
-        inputs[k] = str((base / inputs[k]).resolve()) if not Path(inputs[k]).is_absolute() else inputs[k]
+        inputs[k] = absolute(inputs[k], base)  # a URL stays as it is
     if "faults" not in inputs:
         raise ProjectFileError(f"{path}: [inputs] needs 'faults' (the fault traces).")
-    for k in _PATH_KEYS & set(inputs):
-        if not Path(inputs[k]).exists():
+    for k in sorted(_PATH_KEYS & set(inputs)):
+        if location_kind(inputs[k]) == "local" and not Path(inputs[k]).exists():
             raise ProjectFileError(f"{path}: [inputs] {k} = {inputs[k]!r} does not exist; fix the path.")
     output = _check_table(data.get("output", {}), OUTPUT_KEYS, "output", path)
     if "gpkg" not in output:

@@ -22,7 +22,7 @@ import geopandas as gpd
 import pandas as pd
 
 from faultmap.errors import CRSError, FaultmapWarning, InputError, NotAvailableError, OutputError
-from faultmap.registry import BrokenTool, load_tools, resolve_order
+from faultmap.registry import INPUT_KINDS, BrokenTool, load_tools, resolve_order
 
 __all__ = ["RunContext", "RunResult", "run_tools", "INPUT_KEYS", "file_checksum"]
 
@@ -172,8 +172,18 @@ class RunResult:
     styles: list[Path] = field(default_factory=list)
 
 
-def file_checksum(path: Path, *, full_limit: int = 2 * 1024**3) -> str:
-    """SHA-256 of a file; files over ``full_limit`` bytes hash head, tail and size."""
+def file_checksum(path, *, full_limit: int = 2 * 1024**3) -> str:
+    """SHA-256 of a local file; files over ``full_limit`` bytes hash head, tail and size.
+
+    A remote input (URL, ``/vsicurl/``, ``/vsis3/``...) or a GDAL virtual path is not downloaded to
+    be hashed: it is described by what is cheap and stable, the size, modification time and ETag
+    that GDAL reports (:func:`faultmap.io.locations.remote_fingerprint`), and the text says so.
+    """
+    from faultmap.io.locations import location_kind, remote_fingerprint
+
+    if location_kind(path) != "local":
+        return remote_fingerprint(path)
+    path = Path(path)
     h = hashlib.sha256()
     size = path.stat().st_size
     with open(path, "rb") as fh:
@@ -188,7 +198,17 @@ def file_checksum(path: Path, *, full_limit: int = 2 * 1024**3) -> str:
         return "sha256-partial:" + h.hexdigest()
 
 
-def _check_inputs(inputs: dict) -> dict:
+def _check_inputs(inputs: dict, engine=None) -> dict:
+    """Check the ``inputs`` mapping before anything is read or computed.
+
+    Values are checked for type; every input of a kind in :data:`faultmap.registry.INPUT_KINDS`
+    must exist (local path) or open with GDAL (URL or virtual path), else the run stops with one
+    line naming it and what GDAL answered. On a Dask engine, one worker is asked to open the inputs
+    workers read themselves (the rasters, :data:`faultmap.io.locations.RASTER_KINDS`) at the
+    absolute path they will be sent (:meth:`faultmap.engine.Engine.check_worker_access`).
+    """
+    from faultmap.io.locations import RASTER_KINDS, absolute, check_readable
+
     unknown = sorted(set(inputs) - set(INPUT_KEYS))
     if unknown:
         raise InputError(f"unknown input '{unknown[0]}'; valid: {', '.join(INPUT_KEYS)}.")
@@ -206,6 +226,11 @@ def _check_inputs(inputs: dict) -> dict:
         elif not isinstance(v, str):
             raise InputError(f"input '{k}' must be text (a path or name), got {v!r}.")
         out[k] = v
+    for k in INPUT_KINDS:
+        if k in out:
+            check_readable(k, out[k])
+    if engine is not None and getattr(engine, "client", None) is not None:
+        engine.check_worker_access({k: absolute(out[k]) for k in INPUT_KINDS if k in out and k in RASTER_KINDS})
     return out
 
 
@@ -292,14 +317,31 @@ def _value_text(v) -> str:
 
 
 def _shown_path(v, base: Path) -> str:
-    """Show a local path relative to the output's folder (results can be shared without one's folder layout)."""
+    """Show a local path relative to the output's folder (results can be shared without one's folder layout).
+
+    URLs and GDAL virtual paths are shown as they were given.
+    """
+    from faultmap.io.locations import location_kind
+
     text = str(v)
-    if "://" in text or text.startswith("/vsi"):
+    if location_kind(text) != "local":
         return text
     try:
         return Path(os.path.relpath(Path(text).resolve(), base.resolve())).as_posix()
     except ValueError:  # another drive (Windows)
         return Path(text).name
+
+
+def _checksum_rows(kind: str, v) -> list[tuple[str, str]]:
+    """``run_info`` rows that identify an input's content: size and SHA-256 (local), or a remote fingerprint."""
+    from faultmap.io.locations import location_kind
+
+    if location_kind(v) != "local":
+        return [(f"input.{kind}.checksum", file_checksum(v))]
+    p = Path(v)
+    if not p.is_file():
+        return []
+    return [(f"input.{kind}.size_bytes", str(p.stat().st_size)), (f"input.{kind}.checksum", file_checksum(p))]
 
 
 def _run_info(ctx: RunContext, order: list[str], params: dict, inputs: dict, out: Path) -> pd.DataFrame:
@@ -323,10 +365,7 @@ def _run_info(ctx: RunContext, order: list[str], params: dict, inputs: dict, out
             shown[str(v)] = _shown_path(v, base)
             shown[str(Path(str(v)).resolve())] = shown[str(v)]
             rows.append((f"input.{k}", shown[str(v)]))
-            p = Path(v)
-            if p.is_file():
-                rows.append((f"input.{k}.size_bytes", str(p.stat().st_size)))
-                rows.append((f"input.{k}.checksum", file_checksum(p)))
+            rows += _checksum_rows(k, v)
         else:
             rows.append((f"input.{k}", _value_text(v)))
 
@@ -411,7 +450,7 @@ def run_tools(
 
     registry = load_tools() if tools is None else tools
     params = {k: dict(v or {}) for k, v in (params or {}).items()}
-    inputs = _check_inputs(dict(inputs))
+    inputs = _check_inputs(dict(inputs), engine=engine)
     sources = [inputs[k] for k in _FILE_INPUTS if inputs.get(k)]
     folders = [figures] if figures is not None else []
     out = check_target(out, overwrite=overwrite, inputs=sources, folders=folders)

@@ -5,6 +5,12 @@ metadata and opens the file again for each windowed read, so it is cheap to
 pass around, picklable (it carries the path, never an open dataset) and
 safe to use from several threads.
 
+The path may be a local file, a URL or a GDAL virtual path (see
+:mod:`faultmap.io.locations`). :func:`open_dem` keeps it as text, absolute
+for a local file, so that the ``Dem`` means the same file on a Dask worker
+running in another folder. Every read is a window (never the whole file);
+remote reads run under :data:`faultmap.io.locations.REMOTE_GDAL_OPTIONS`.
+
 Pixel convention: the value of row ``i``, column ``j`` is the elevation at the
 pixel centre, ``(x, y) = transform * (j + 0.5, i + 0.5)``.
 """
@@ -20,6 +26,7 @@ import numpy as np
 from scipy import ndimage
 
 from faultmap.errors import CRSError, InputError, InputFileError
+from faultmap.io.locations import absolute, check_readable, gdal_path, location_kind, remote_options
 
 __all__ = ["Dem", "open_dem", "COMMON_VOID_VALUES"]
 
@@ -33,8 +40,9 @@ class Dem:
 
     Attributes
     ----------
-    path : pathlib.Path
-        The raster file.
+    path : str
+        The raster: an absolute local path, a URL or a GDAL virtual path
+        (as text: a URL must not pass through :class:`pathlib.Path`).
     crs : pyproj.CRS or None
         The raster's CRS.
     transform : affine.Affine
@@ -51,7 +59,7 @@ class Dem:
         How the file stores elevations (``float32``, ``int16``...).
     """
 
-    path: Path
+    path: str
     crs: object
     transform: object
     width: int
@@ -106,6 +114,11 @@ class Dem:
         return (slice(r0, r1), slice(c0, c1))
 
     # ------------------------------------------------------------------ reading
+    @property
+    def gdal_path(self) -> str:
+        """The name GDAL opens (a URL turned into its ``/vsicurl/``, ``/vsis3/``... path)."""
+        return gdal_path(self.path)
+
     def read_rows_cols(self, rows: slice, cols: slice) -> np.ndarray:
         """Read a window as float64 metres with voids as NaN (never 0)."""
         import rasterio
@@ -113,7 +126,7 @@ class Dem:
 
         win = Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
         try:
-            with rasterio.open(self.path) as src:
+            with rasterio.Env(**remote_options(self.path)), rasterio.open(self.gdal_path) as src:
                 arr = src.read(self.band, window=win, out_dtype="float64")
                 mask = src.read_masks(self.band, window=win) == 0
         except rasterio.errors.RasterioIOError as exc:  # pragma: no cover - disk errors
@@ -248,7 +261,8 @@ def open_dem(path, *, nodata: float | None = None, metres_per_unit: float = 1.0,
     Parameters
     ----------
     path : str or pathlib.Path
-        Any raster GDAL reads.
+        Any raster GDAL reads: a local file (made absolute), a URL (``https://``, ``s3://``...)
+        or a GDAL virtual path (``/vsicurl/...``, ``/vsizip/...``); see :mod:`faultmap.io.locations`.
     nodata : float, optional
         Void value to use when the file has none (or to override it).
     metres_per_unit : float
@@ -259,19 +273,22 @@ def open_dem(path, *, nodata: float | None = None, metres_per_unit: float = 1.0,
     Raises
     ------
     InputFileError
-        Missing or unreadable file.
+        Missing or unreadable file, unreachable server.
     CRSError
         The raster has no CRS or a geographic one.
     """
     import rasterio
 
-    p = Path(path)
-    if not p.exists():
-        raise InputFileError(f"{p}: DEM file not found; check the path.")
+    text = str(path)
+    if location_kind(text) == "local" and not Path(text).expanduser().exists():
+        raise InputFileError(f"{text}: DEM file not found; check the path.")
+    if location_kind(text) != "local":
+        check_readable("dem", text, raster=True)
+    p = absolute(text)
     try:
-        with rasterio.open(p) as src:
+        with rasterio.Env(**remote_options(p)), rasterio.open(gdal_path(p)) as src:
             if band < 1 or band > src.count:
-                raise InputError(f"{p}: band {band} does not exist (the file has {src.count}).")
+                raise InputError(f"{text}: band {band} does not exist (the file has {src.count}).")
             file_nodata = src.nodatavals[band - 1]
             crs = src.crs
             transform = src.transform
@@ -279,19 +296,19 @@ def open_dem(path, *, nodata: float | None = None, metres_per_unit: float = 1.0,
             block = tuple(src.block_shapes[band - 1])
             dtype = src.dtypes[band - 1]
     except rasterio.errors.RasterioIOError as exc:
-        raise InputFileError(f"{p}: not a raster GDAL can read ({str(exc).splitlines()[0]}).") from exc
+        raise InputFileError(f"{text}: not a raster GDAL can read ({str(exc).splitlines()[0]}).") from exc
     if not (metres_per_unit > 0 and math.isfinite(metres_per_unit)):
-        raise InputError(f"{p}: metres per DEM elevation unit must be a positive number (0.3048 for a DEM in feet), got {metres_per_unit}.")
+        raise InputError(f"{text}: metres per DEM elevation unit must be a positive number (0.3048 for a DEM in feet), got {metres_per_unit}.")
     if transform.b != 0 or transform.d != 0:
-        raise InputError(f"{p}: rotated rasters are not supported; warp the DEM north-up first.")
+        raise InputError(f"{text}: rotated rasters are not supported; warp the DEM north-up first.")
     if crs is None:
-        raise CRSError(f"{p}: the DEM has no CRS; assign one (e.g. gdal_edit -a_srs EPSG:xxxx) and retry.")
+        raise CRSError(f"{text}: the DEM has no CRS; assign one (e.g. gdal_edit -a_srs EPSG:xxxx) and retry.")
     from pyproj import CRS
 
     pcrs = CRS.from_user_input(crs.to_wkt())
     if pcrs.is_geographic:
         raise CRSError(
-            f"{p}: the DEM is in geographic coordinates ({pcrs.name}); reproject it to a projected metric CRS "
+            f"{text}: the DEM is in geographic coordinates ({pcrs.name}); reproject it to a projected metric CRS "
             "(e.g. the local UTM zone) first."
         )
     nd = nodata if nodata is not None else file_nodata
@@ -370,8 +387,10 @@ def read_window_array(
     try:
         # uncompressed GeoTIFFs that fit in RAM are read through a memory map (GDAL's
         # GTIFF_VIRTUAL_MEM_IO; measured about a third faster than the block cache), others as usual
-        with rasterio.Env(GDAL_CACHEMAX=int(max(cache_mb, 1)), GTIFF_VIRTUAL_MEM_IO=_VIRTUAL_MEM_IO):
-            with rasterio.open(dem.path) as src:
+        with rasterio.Env(
+            GDAL_CACHEMAX=int(max(cache_mb, 1)), GTIFF_VIRTUAL_MEM_IO=_VIRTUAL_MEM_IO, **remote_options(dem.path)
+        ):
+            with rasterio.open(dem.gdal_path) as src:
                 raw = src.read(dem.band, window=w)
                 flags = src.mask_flag_enums[dem.band - 1]
                 mask = None
@@ -482,8 +501,8 @@ def read_overview(dem: Dem, *, max_pixels: int = 2_000_000, bounds=None):
     f = max(1.0, math.sqrt(h * w / max(int(max_pixels), 1)))
     oh, ow = max(1, int(round(h / f))), max(1, int(round(w / f)))
     window = Window(cols.start, rows.start, w, h)
-    with rasterio.Env(GDAL_CACHEMAX=64):
-        with rasterio.open(dem.path) as src:
+    with rasterio.Env(GDAL_CACHEMAX=64, **remote_options(dem.path)):
+        with rasterio.open(dem.gdal_path) as src:
             ma = src.read(
                 dem.band, window=window, out_shape=(oh, ow), resampling=Resampling.average, masked=True
             )

@@ -1,4 +1,8 @@
-"""Reading vector layers (traces, transects, study areas) from any GDAL source."""
+"""Reading vector layers (traces, transects, study areas...) from any GDAL source.
+
+A source is a local path, a URL or a GDAL virtual path (see :mod:`faultmap.io.locations`); it is
+kept as text, so a URL's ``//`` survives, and messages name it as the user gave it.
+"""
 
 from __future__ import annotations
 
@@ -7,6 +11,7 @@ from pathlib import Path
 import geopandas as gpd
 
 from faultmap.errors import CRSError, InputError, InputFileError
+from faultmap.io.locations import gdal_path, location_kind
 
 __all__ = ["read_layer", "list_layers"]
 
@@ -21,12 +26,15 @@ def list_layers(path) -> list[str]:
     """
     import pyogrio
 
-    p = Path(path)
-    if not p.exists():
+    p = str(path)
+    local = location_kind(p) == "local"
+    if local and not Path(p).expanduser().exists():
         raise InputFileError(f"{p}: file not found; check the path.")
     try:
-        layers = pyogrio.list_layers(p)
+        layers = pyogrio.list_layers(gdal_path(p))
     except Exception as exc:  # pyogrio raises DataSourceError and friends
+        if not local:
+            raise InputFileError(f"{p}: cannot open the remote or virtual source (GDAL: {_first_line(exc)}).") from exc
         raise InputFileError(
             f"{p}: not a vector file GDAL can read ({_first_line(exc)}); export the layer as GeoPackage or Shapefile."
         ) from exc
@@ -61,7 +69,7 @@ def read_layer(path, *, layer: str | None = None, what: str = "faults", crs=None
     import pyogrio
     from pyproj import CRS
 
-    p = Path(path)
+    p = str(path)
     names = list_layers(p)
     if not names:
         raise InputFileError(f"{p}: the file holds no layers.")
@@ -75,7 +83,7 @@ def read_layer(path, *, layer: str | None = None, what: str = "faults", crs=None
     elif layer not in names:
         raise InputError(f"{p}: layer '{layer}' not found; layers in the file: {', '.join(names)}.")
     try:
-        gdf = pyogrio.read_dataframe(p, layer=layer)
+        gdf = pyogrio.read_dataframe(gdal_path(p), layer=layer)
     except Exception as exc:
         raise InputFileError(f"{p}, layer '{layer}': cannot read ({_first_line(exc)}).") from exc
     where = f"{p}, layer '{layer}'"
