@@ -19,6 +19,7 @@ _EXPORTS = {
     "pixel_centres": "grid",
     "parallel_faults": "populations",
     "fault_population": "populations",
+    "diffused_ramp": "degradation",
 }
 __all__ = list(_EXPORTS)
 __getattr__, __dir__ = lazy_exports(__name__, globals(), _EXPORTS)
