@@ -252,9 +252,13 @@ def check_readable(kind: str, location, *, raster: bool | None = None) -> None:
 
             pyogrio.list_layers(name)
     except Exception as exc:  # noqa: BLE001 - rasterio and pyogrio raise their own classes
+        todo = (
+            "check the address, that the server is up and your access to it"
+            if where == "remote"
+            else "check the archive's path and the path inside it"
+        )
         raise InputFileError(
-            f"{text}: cannot open the {where} input '{kind}' (GDAL: {_gdal_answer(exc)}); check the address, "
-            "that the server is up and your access to it."
+            f"{text}: cannot open the {where} input '{kind}' (GDAL: {_gdal_answer(exc)}); {todo}."
         ) from exc
 
 

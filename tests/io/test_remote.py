@@ -323,3 +323,22 @@ def test_cli_takes_urls_and_says_what_gdal_answered(tmp_path, scene, server):
     assert bad.exit_code == 2
     lines = [ln for ln in bad.output.splitlines() if ln.strip()]
     assert len(lines) == 1 and "none.tif" in lines[0] and "HTTP response code: 404" in lines[0], bad.output
+
+
+def test_dem_inside_a_zip_is_read_in_place_with_its_archive_made_absolute(tmp_path, scene, monkeypatch):
+    import zipfile
+
+    with zipfile.ZipFile(tmp_path / "dem.zip", "w") as z:
+        z.write(scene["dem"], "inner/dem.tif")
+    monkeypatch.chdir(tmp_path)
+    dem = open_dem("/vsizip/dem.zip/inner/dem.tif")
+    assert dem.path == f"/vsizip/{tmp_path.resolve()}/dem.zip/inner/dem.tif"  # what a worker elsewhere needs
+    box = (CORNER[0] + 3000, CORNER[1] - 5000, CORNER[0] + 5000, CORNER[1] - 3000)
+    np.testing.assert_array_equal(dem.read_window(box)[0], open_dem(scene["dem"]).read_window(box)[0])
+    with pytest.raises(InputFileError, match=r"cannot open the virtual input 'dem' .*path inside it"):
+        run_tools(
+            ["throw"],
+            inputs={"faults": scene["faults"], "dem": "/vsizip/dem.zip/nope.tif"},
+            out=tmp_path / "z.gpkg",
+            quiet=True,
+        )
