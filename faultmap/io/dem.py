@@ -280,7 +280,7 @@ def open_dem(path, *, nodata: float | None = None, metres_per_unit: float = 1.0,
     import rasterio
 
     text = str(path)
-    if location_kind(text) == "local" and not Path(text).expanduser().exists():
+    if location_kind(text) == "local" and not Path(gdal_path(text)).expanduser().exists():
         raise InputFileError(f"{text}: DEM file not found; check the path.")
     if location_kind(text) != "local":
         check_readable("dem", text, raster=True)

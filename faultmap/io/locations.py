@@ -179,9 +179,9 @@ def absolute(location, base=None) -> str:
     base_p = Path(base) if base is not None else Path.cwd()
     kind = location_kind(text)
     if kind == "url":
-        return text if _scheme(text) != "file" else text[len("file://") :]
+        return text
     if kind == "local":
-        p = Path(text).expanduser()
+        p = Path(gdal_path(text)).expanduser()  # a file:// URL is a local path
         return str(p if p.is_absolute() else (base_p / p).resolve())
     if is_remote(text):
         return text
@@ -233,7 +233,7 @@ def check_readable(kind: str, location, *, raster: bool | None = None) -> None:
     text = os.fspath(location)
     raster = (kind in RASTER_KINDS) if raster is None else raster
     if location_kind(text) == "local":
-        p = Path(text).expanduser()
+        p = Path(gdal_path(text)).expanduser()
         if not p.exists():
             what = "DEM file" if kind == "dem" else f"{kind} file"
             raise InputFileError(f"{text}: {what} not found (input '{kind}'); check the path.")

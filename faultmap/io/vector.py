@@ -28,7 +28,7 @@ def list_layers(path) -> list[str]:
 
     p = str(path)
     local = location_kind(p) == "local"
-    if local and not Path(p).expanduser().exists():
+    if local and not Path(gdal_path(p)).expanduser().exists():
         raise InputFileError(f"{p}: file not found; check the path.")
     try:
         layers = pyogrio.list_layers(gdal_path(p))
