@@ -758,7 +758,12 @@ def test_throw_tool_end_to_end(tmp_path):
     assert np.allclose((faults["strike_deg"] + 90.0) % 360.0, faults["dip_dir_deg"] % 360.0)
     info = dict(zip(res.run_info["key"], res.run_info["value"], strict=True))
     assert "throw.station_spacing_m_used" in info and "throw.profile_half_length_m_used" in info
-    assert sorted(p.name for p in res.figures) == ["throw_map.png", "throw_profiles.png", "throw_systems.png"]
+    assert sorted(p.name for p in res.figures) == [
+        "throw_degradation.png",
+        "throw_map.png",
+        "throw_profiles.png",
+        "throw_systems.png",
+    ]
 
 
 def test_first_run_compile_is_announced(tmp_path, monkeypatch):
