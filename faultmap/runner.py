@@ -319,13 +319,22 @@ def _value_text(v) -> str:
 def _shown_path(v, base: Path) -> str:
     """Show a local path relative to the output's folder (results can be shared without one's folder layout).
 
-    URLs and GDAL virtual paths are shown as they were given.
+    URLs and network paths are shown as they were given; in a path into a local archive
+    (``/vsizip/...``) the archive's path is shown relative too.
     """
-    from faultmap.io.locations import location_kind
+    from faultmap.io.locations import archive_parts, gdal_path, location_kind
 
     text = str(v)
-    if location_kind(text) != "local":
+    kind = location_kind(text)
+    if kind == "virtual":
+        parts = archive_parts(text)
+        if parts is None:
+            return text  # network or other virtual paths: as given
+        prefix, archive, inner = parts  # a local archive: its path relative, like any local file
+        return prefix + _shown_path(archive, base) + ("/" + inner if inner else "")
+    if kind != "local":
         return text
+    text = gdal_path(text)  # a file:// URL
     try:
         return Path(os.path.relpath(Path(text).resolve(), base.resolve())).as_posix()
     except ValueError:  # another drive (Windows)

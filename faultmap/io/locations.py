@@ -39,6 +39,7 @@ __all__ = [
     "is_remote",
     "gdal_path",
     "absolute",
+    "archive_parts",
     "remote_options",
     "check_readable",
     "remote_fingerprint",
@@ -183,21 +184,46 @@ def absolute(location, base=None) -> str:
     if kind == "local":
         p = Path(gdal_path(text)).expanduser()  # a file:// URL is a local path
         return str(p if p.is_absolute() else (base_p / p).resolve())
-    if is_remote(text):
+    parts = archive_parts(text, base_p)
+    if parts is None:
         return text
+    prefix, archive, inner = parts
+    return prefix + str(archive.resolve()) + ("/" + inner if inner else "")
+
+
+def archive_parts(location, base=None):
+    """Split a path into a local archive (``/vsizip/tiles.zip/dem.tif``) into its three parts.
+
+    Parameters
+    ----------
+    location : str or os.PathLike
+    base : str or os.PathLike, optional
+        Folder a relative archive path is relative to (default: the current folder).
+
+    Returns
+    -------
+    tuple of (str, pathlib.Path, str) or None
+        The prefix (``/vsizip/``), the archive file (absolute or under ``base``) and the path inside
+        it; None when ``location`` is not such a path or the archive cannot be found.
+    """
+    text = os.fspath(location)
+    if is_remote(text):
+        return None
+    base_p = Path(base) if base is not None else Path.cwd()
     for prefix in _ARCHIVE_VSI:
-        if text.startswith(prefix):
-            rest = text[len(prefix) :]
-            if rest.startswith(("/", "{")):
-                return text  # already absolute, or GDAL's {archive} form
-            parts = rest.split("/")
-            for i in range(1, len(parts) + 1):
-                candidate = base_p.joinpath(*parts[:i])
-                if candidate.is_file():
-                    inner = "/".join(parts[i:])
-                    return prefix + str(candidate.resolve()) + ("/" + inner if inner else "")
-            return text
-    return text
+        if not text.startswith(prefix):
+            continue
+        rest = text[len(prefix) :]
+        if rest.startswith("{"):
+            return None  # GDAL's {archive} form: left as written
+        root, rest = (Path("/"), rest[1:]) if rest.startswith("/") else (base_p, rest)
+        parts = rest.split("/")
+        for i in range(1, len(parts) + 1):
+            candidate = root.joinpath(*parts[:i])
+            if candidate.is_file():
+                return prefix, candidate, "/".join(parts[i:])
+        return None
+    return None
 
 
 def remote_options(location) -> dict:

@@ -335,6 +335,16 @@ def test_dem_inside_a_zip_is_read_in_place_with_its_archive_made_absolute(tmp_pa
     assert dem.path == f"/vsizip/{tmp_path.resolve()}/dem.zip/inner/dem.tif"  # what a worker elsewhere needs
     box = (CORNER[0] + 3000, CORNER[1] - 5000, CORNER[0] + 5000, CORNER[1] - 3000)
     np.testing.assert_array_equal(dem.read_window(box)[0], open_dem(scene["dem"]).read_window(box)[0])
+    (tmp_path / "out").mkdir()
+    res = _throw(
+        {"faults": scene["faults"], "dem": f"/vsizip/{tmp_path}/dem.zip/inner/dem.tif"},
+        tmp_path / "out/z.gpkg",
+    )
+    info = dict(zip(res["run_info"]["key"], res["run_info"]["value"], strict=True))
+    assert (
+        info["input.dem"] == "/vsizip/../dem.zip/inner/dem.tif"
+    )  # relative to the output's folder, as local files
+    assert info["input.dem.checksum"].startswith("virtual (size; not a content hash): size=")
     with pytest.raises(InputFileError, match=r"cannot open the virtual input 'dem' .*path inside it"):
         run_tools(
             ["throw"],
