@@ -146,8 +146,9 @@ TOOL = Tool(
               "Unset: segments and linked systems only.",
               unit="m", min=0.0, nullable=True),
         Param("preferred", str, "area_mean",
-              "Rule for the preferred magnitude: 'area_mean' = mean of Wells & Coppersmith 1994 RA-normal "
-              "and Hanks & Bakun 2002, or one relation key.",
+              "Rule for the preferred magnitude: 'area_mean' = inverse-variance weighted mean of Wells & "
+              "Coppersmith 1994 RA-normal and Hanks & Bakun 2002 (the H&B branch above 537 km2 has weight 0), "
+              "or one relation key.",
               choices=PREFERRED_RULES),
         Param("shear_modulus_pa", float, SHEAR_MODULUS_PA, "Shear modulus for the seismic moment M0 = mu A D.",
               unit="Pa", min=0.0, min_exclusive=True),
