@@ -229,8 +229,9 @@ def _check_inputs(inputs: dict, engine=None) -> dict:
     for k in INPUT_KINDS:
         if k in out:
             check_readable(k, out[k])
-    if engine is not None and getattr(engine, "client", None) is not None:
-        engine.check_worker_access({k: absolute(out[k]) for k in INPUT_KINDS if k in out and k in RASTER_KINDS})
+    check_workers = getattr(engine, "check_worker_access", None)  # faultmap's engines; in-process: a no-op
+    if check_workers is not None:
+        check_workers({k: absolute(out[k]) for k in INPUT_KINDS if k in out and k in RASTER_KINDS})
     return out
 
 
