@@ -131,7 +131,7 @@ def morphologic_ages(kt_m2, kt_err_m2, kappa_draws_m2_kyr, *, bound_m2=None, see
     -----
     t = kappa t / kappa (Hanks et al. 1984). Kappa t is drawn log-normal
     (sigma of ln = error / value); every fault uses the same kappa draws, so
-    a shared kappa error moves all ages together.
+    a common error in kappa moves all ages together.
     """
     kt = np.asarray(kt_m2, float)
     ke = np.asarray(kt_err_m2, float)
