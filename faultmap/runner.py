@@ -6,7 +6,6 @@ The command line, project files and the Python API all end here, in
 
 from __future__ import annotations
 
-import hashlib
 import os
 import shutil
 import sys
@@ -14,7 +13,6 @@ import time
 import warnings as _warnings
 from collections.abc import Iterable
 from dataclasses import dataclass, field
-from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
@@ -24,7 +22,7 @@ import pandas as pd
 from faultmap.errors import CRSError, FaultmapWarning, InputError, NotAvailableError, OutputError
 from faultmap.registry import INPUT_KINDS, BrokenTool, load_tools, resolve_order
 
-__all__ = ["RunContext", "RunResult", "run_tools", "INPUT_KEYS", "file_checksum"]
+__all__ = ["RunContext", "RunResult", "run_tools", "INPUT_KEYS"]
 
 #: Keys accepted in the ``inputs`` mapping (and the ``[inputs]`` table).
 INPUT_KEYS = {
@@ -172,32 +170,6 @@ class RunResult:
     styles: list[Path] = field(default_factory=list)
 
 
-def file_checksum(path, *, full_limit: int = 2 * 1024**3) -> str:
-    """SHA-256 of a local file; files over ``full_limit`` bytes hash head, tail and size.
-
-    A remote input (URL, ``/vsicurl/``, ``/vsis3/``...) or a GDAL virtual path is not downloaded to
-    be hashed: it is described by what is cheap and stable, the size, modification time and ETag
-    that GDAL reports (:func:`faultmap.io.locations.remote_fingerprint`), and the text says so.
-    """
-    from faultmap.io.locations import location_kind, remote_fingerprint
-
-    if location_kind(path) != "local":
-        return remote_fingerprint(path)
-    path = Path(path)
-    h = hashlib.sha256()
-    size = path.stat().st_size
-    with open(path, "rb") as fh:
-        if size <= full_limit:
-            for chunk in iter(lambda: fh.read(1 << 20), b""):
-                h.update(chunk)
-            return "sha256:" + h.hexdigest()
-        h.update(fh.read(64 << 20))
-        fh.seek(size - (64 << 20))
-        h.update(fh.read())
-        h.update(str(size).encode())
-        return "sha256-partial:" + h.hexdigest()
-
-
 def _check_inputs(inputs: dict, engine=None) -> dict:
     """Check the ``inputs`` mapping before anything is read or computed.
 
@@ -278,127 +250,6 @@ def _load_inputs(ctx: RunContext, inputs: dict, needed: set[str]) -> None:
             setattr(ctx, kind, g)
     if ctx.crs is not None and ctx.crs.is_geographic:  # pragma: no cover - guarded above
         raise CRSError("working CRS is geographic; this is a bug.")
-
-
-#: Libraries whose versions every run records (the numbers depend on them).
-RECORDED_LIBRARIES = ("numpy", "scipy", "pandas", "shapely", "geopandas", "pyproj", "pyogrio", "rasterio",
-                      "numba", "matplotlib")
-
-
-def library_versions() -> dict[str, str]:
-    """Versions of the libraries a run's numbers depend on, GDAL and PROJ included."""
-    from importlib import metadata
-
-    out = {}
-    for name in RECORDED_LIBRARIES:
-        try:
-            out[name] = metadata.version(name)
-        except metadata.PackageNotFoundError:  # pragma: no cover - all are dependencies
-            out[name] = "not installed"
-    try:
-        import rasterio
-
-        out["gdal"] = rasterio.__gdal_version__
-    except Exception:  # noqa: BLE001  # pragma: no cover
-        pass
-    try:
-        import pyproj
-
-        out["proj"] = pyproj.proj_version_str
-    except Exception:  # noqa: BLE001  # pragma: no cover
-        pass
-    return out
-
-
-def _value_text(v) -> str:
-    """Write a run_info value as text: floats to 12 significant digits (no float noise), the rest as str."""
-    if isinstance(v, float) or type(v).__name__ in ("float64", "float32"):
-        return repr(float(f"{float(v):.12g}"))  # 1250.0000000000623 -> 1250.0
-    return str(v)
-
-
-def _shown_path(v, base: Path) -> str:
-    """Show a local path relative to the output's folder (results can be shared without one's folder layout).
-
-    URLs and network paths are shown as they were given; in a path into a local archive
-    (``/vsizip/...``) the archive's path is shown relative too.
-    """
-    from faultmap.io.locations import archive_parts, gdal_path, location_kind
-
-    text = str(v)
-    kind = location_kind(text)
-    if kind == "virtual":
-        parts = archive_parts(text)
-        if parts is None:
-            return text  # network or other virtual paths: as given
-        prefix, archive, inner = parts  # a local archive: its path relative, like any local file
-        return prefix + _shown_path(archive, base) + ("/" + inner if inner else "")
-    if kind != "local":
-        return text
-    text = gdal_path(text)  # a file:// URL
-    try:
-        return Path(os.path.relpath(Path(text).resolve(), base.resolve())).as_posix()
-    except ValueError:  # another drive (Windows)
-        return Path(text).name
-
-
-def _checksum_rows(kind: str, v) -> list[tuple[str, str]]:
-    """``run_info`` rows that identify an input's content: size and SHA-256 (local), or a remote fingerprint."""
-    from faultmap.io.locations import location_kind
-
-    if location_kind(v) != "local":
-        return [(f"input.{kind}.checksum", file_checksum(v))]
-    p = Path(v)
-    if not p.is_file():
-        return []
-    return [(f"input.{kind}.size_bytes", str(p.stat().st_size)), (f"input.{kind}.checksum", file_checksum(p))]
-
-
-def _run_info(ctx: RunContext, order: list[str], params: dict, inputs: dict, out: Path) -> pd.DataFrame:
-    from faultmap import __version__
-
-    base = out.parent
-    rows: list[tuple[str, str]] = [
-        ("faultmap_version", __version__),
-        ("run_utc", datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")),
-        ("tools", ",".join(order)),
-        ("output", out.name),
-        ("paths", "input paths are relative to the output's folder"),
-        ("engine", ctx.engine.describe() if ctx.engine is not None else "in-process, 1 thread(s)"),
-        ("working_crs_name", ctx.crs.name if ctx.crs is not None else ""),
-        ("working_crs_wkt", ctx.crs.to_wkt() if ctx.crs is not None else ""),
-    ]
-    rows += [(f"library.{k}", v) for k, v in library_versions().items()]
-    shown = {}
-    for k, v in inputs.items():
-        if k in _FILE_INPUTS:
-            shown[str(v)] = _shown_path(v, base)
-            shown[str(Path(str(v)).resolve())] = shown[str(v)]
-            rows.append((f"input.{k}", shown[str(v)]))
-            rows += _checksum_rows(k, v)
-        else:
-            rows.append((f"input.{k}", _value_text(v)))
-
-    def _relative(text: str) -> str:
-        for full in sorted(shown, key=len, reverse=True):
-            text = text.replace(full, shown[full])
-        return text
-
-    for k, v in ctx.fields.items():
-        rows.append((f"field.{k}", str(v)))
-    for tool, ps in params.items():
-        for k, v in ps.items():
-            rows.append((f"param.{tool}.{k}", "" if v is None else _value_text(v)))
-    recorded = set()
-    for k, v in ctx.records.items():
-        rows.append((k, _relative(_value_text(v))))
-        recorded.add(f"{k.split('.', 1)[0]}: {v}")
-    for i, n in enumerate(ctx.notices, 1):
-        rows.append((f"notice.{i}", _relative(n)))
-    kept = [w for w in ctx.warnings if w not in recorded]  # a recorded text (the hazard caution) once
-    for i, w in enumerate(kept, 1):
-        rows.append((f"warning.{i}", _relative(w)))
-    return pd.DataFrame(rows, columns=["key", "value"])
 
 
 def run_tools(
@@ -532,7 +383,10 @@ def run_tools(
         if ctx.crs is None:
             raise InputError("no input gave a CRS: give faults or a DEM.")
         t0 = time.perf_counter()
-        run_info = _run_info(ctx, order, resolved, inputs, out)
+        from faultmap import __version__
+        from faultmap.io.provenance import run_info_table
+
+        run_info = run_info_table(ctx, order, resolved, inputs, out, version=__version__, file_inputs=_FILE_INPUTS)
         layers = {k: v for k, v in ctx.layers.items() if v is not None}
         layers["run_info"] = run_info
         staged[out] = stage_gpkg(out, layers, crs=ctx.crs)

@@ -10,7 +10,8 @@ import re
 
 import pyogrio
 
-from faultmap.runner import _value_text, library_versions
+from faultmap.io.provenance import library_versions
+from faultmap.io.provenance import value_text as _value_text
 
 
 def test_value_text_drops_float_noise():
