@@ -63,7 +63,7 @@ def _truncnorm_ppf_above(q: np.ndarray, a: np.ndarray) -> np.ndarray:
 
 def _draw_chunks(
     throw_m, throw_err_m, age_ka, age_err_ka, dip_deg, *, dip_range_deg: float, n_draws: int, seed: int,
-    chunk_draws: int = _CHUNK_DRAWS,
+    chunk_draws: int = _CHUNK_DRAWS, dip_min_deg=None, dip_max_deg=None,
 ):
     """Yield ``(rows, draws)`` for consecutive blocks of faults; together they are :func:`slip_rate_draws`.
 
@@ -90,7 +90,16 @@ def _draw_chunks(
     s_ln = np.sqrt(np.log1p(cv**2))
     lo = np.clip(dip - dip_range_deg, 1.0, 90.0)
     hi = np.clip(dip + dip_range_deg, 1.0, 90.0)
+    # a fault's own dip range (a database's "50-70" or "(50,60,70)", read by prepare) replaces the
+    # +- dip_range_deg where given
+    if dip_min_deg is not None:
+        own = np.asarray(dip_min_deg, float)[:, None]
+        lo = np.where(np.isfinite(own), np.clip(own, 1.0, 90.0), lo)
+    if dip_max_deg is not None:
+        own = np.asarray(dip_max_deg, float)[:, None]
+        hi = np.where(np.isfinite(own), np.clip(own, 1.0, 90.0), hi)
     lo = np.minimum(lo, dip)
+    hi = np.maximum(hi, dip)
 
     # the three streams of one generator: uniforms (one 64-bit output each), then normals (a variable
     # number of outputs each: found by drawing them once), then uniforms
@@ -240,6 +249,8 @@ def slip_rates(
     dip_range_deg : float, optional
         Half-width of the uniform dip range drawn, degrees (default 10;
         common practice: +-10-15 degrees for an unknown normal-fault dip).
+        A fault's own ``dip_min_deg`` / ``dip_max_deg`` (a range or triple
+        in the traces' dip field, read by ``prepare``) replace it.
     n_draws, seed : int, optional
         Monte Carlo draws per fault and random seed.
     max_age_ka : float, optional
@@ -364,6 +375,7 @@ def slip_rates(
         for b, draws in _draw_chunks(
             np.where(ok, throw, np.nan), terr, np.where(ok, age, 1.0), aerr, np.where(np.isfinite(dip), dip, 60.0),
             dip_range_deg=dip_range_deg, n_draws=n_draws, seed=seed,
+            dip_min_deg=_col(sel, "dip_min_deg"), dip_max_deg=_col(sel, "dip_max_deg"),
         ):
             rows = np.arange(b.start, b.stop)
             keep = ok[b]  # the other rows' percentiles are not reported
