@@ -52,7 +52,7 @@ __all__ = [
 #: Columns of the faults layer the transect sums need (others are not sent to workers).
 _BATCH_FAULT_COLS = (
     "fault_id", "dip_deg", "dip_source", "dip_dir_deg", "dip_dir_source", "rake_deg", "max_throw_m",
-    "max_throw_err_m", "max_throw_dist_m",
+    "max_throw_err_m", "max_throw_dist_m", "dip_min_deg", "dip_max_deg",
 )
 _BATCH_STATION_COLS = ("fault_id", "dist_m", "throw_m", "throw_err_m", "status")
 _CAPTURE_LOCK = threading.Lock()

@@ -143,7 +143,8 @@ def measure_transects(
         Dip used where a fault's ``dip_deg`` is NaN (marked ``default``).
     dip_range_default_deg, dip_range_attribute_deg : float
         Half-width of the uniform Monte Carlo dip range for default dips and
-        for dips from an attribute, degrees.
+        for dips from an attribute, degrees. A fault's own ``dip_min_deg`` /
+        ``dip_max_deg`` (a range in the traces' dip field) replace them.
     n_draws : int
         Monte Carlo draws (>= 10).
     seed : int
@@ -386,6 +387,10 @@ def measure_transects(
         rng = np.random.default_rng(seed)
         uf, f_inv = np.unique(fv, return_inverse=True)
         half = np.where(dsrc_f[uf] == "attribute", dip_range_attribute_deg, dip_range_default_deg)
+        # a fault's own dip range (a database's "50-70" or "(50,60,70)", read by prepare) replaces +- half
+        own_lo = _col(faults, "dip_min_deg", np.nan)[uf]
+        own_hi = _col(faults, "dip_max_deg", np.nan)[uf]
+        own = np.isfinite(own_lo) & np.isfinite(own_hi) & (own_hi >= own_lo)
         nvc = int(valid.sum())
         agg = sparse.csr_matrix((np.ones(nvc), (tv, np.arange(nvc))), shape=(nt, nvc))
         cm_v, cs_v, k_v = cm_abs[valid], cs[valid], ss_k[valid]
@@ -396,7 +401,12 @@ def measure_transects(
         for start in range(0, n_draws, chunk):
             k = min(chunk, n_draws - start)
             u = rng.uniform(-1.0, 1.0, size=(len(uf), k))
-            dips = np.clip(dip_f[uf][:, None] + half[:, None] * u, _DIP_MIN_DEG, 90.0)[f_inv]
+            dips = np.where(
+                own[:, None],
+                own_lo[:, None] + (own_hi - own_lo)[:, None] * (0.5 * (u + 1.0)),
+                dip_f[uf][:, None] + half[:, None] * u,
+            )
+            dips = np.clip(dips, _DIP_MIN_DEG, 90.0)[f_inv]
             tdraw = np.maximum(t_v[:, None] + e_v[:, None] * rng.standard_normal((nvc, k)), 0.0)
             dr = np.radians(dips)
             h = tdraw / np.tan(dr)

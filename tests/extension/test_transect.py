@@ -563,3 +563,24 @@ def test_fraction_check_value_above_half():
 
     f = fraction_below_detection(20.0, d_min=0.01, d_max=2000.0, exponent_c=1.2)
     assert abs(float(f) - 0.8558) < 5e-4
+
+
+def test_a_faults_own_dip_range_is_drawn():
+    """A database dip range (dip_min_deg 40, dip_max_deg 80) replaces dip +- dip_range in the Monte Carlo.
+
+    With the throw exact, heave = T / tan(dip) falls with the dip, so the 16th and 84th percentiles of the
+    heave sit at the 84th and 16th of the dip: 73.6 and 46.4 deg for U(40, 80) (inverse CDF of the uniform
+    law, analytic); sum_heave_err_m is half their spread.
+    """
+    faults, stations = make_scene(
+        [shapely.LineString([(0, -5000), (0, 5000)])], throw_fn=const_throw(100.0), dip=60.0, dip_dir=[90.0]
+    )
+    tr = transects_gdf([shapely.LineString([(-1000, 0), (1000, 0)])])
+    ranged = faults.assign(dip_min_deg=40.0, dip_max_deg=80.0)
+    t, _ = measure_transects(ranged, stations, tr, zone="full", n_draws=20_000, seed=5)
+    want = 0.5 * 100.0 * (1.0 / np.tan(np.radians(46.4)) - 1.0 / np.tan(np.radians(73.6)))
+    assert t["sum_heave_err_m"].iloc[0] == pytest.approx(want, rel=0.02)
+    # without the range: the attribute dip's +- 5 deg (dip_range_attribute_deg default), much narrower
+    plain, _ = measure_transects(faults, stations, tr, zone="full", n_draws=20_000, seed=5)
+    want_plain = 0.5 * 100.0 * (1.0 / np.tan(np.radians(56.6)) - 1.0 / np.tan(np.radians(63.4)))
+    assert plain["sum_heave_err_m"].iloc[0] == pytest.approx(want_plain, rel=0.02)
