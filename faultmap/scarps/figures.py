@@ -14,6 +14,11 @@ from faultmap.figure_kit import bounded, shown_note
 
 __all__ = ["degradation_figure"]
 
+#: Above this many faults in kappa t against throw, markers shrink and turn translucent.
+_DENSE_POINTS = 300
+#: With that many, error bars are drawn on this many faults (the largest throws) only.
+_ERROR_BARS_MAX = 30
+
 
 def degradation_figure(faults, stations, *, n_largest: int = 4, pixel_size_m: float | None = None) -> Figure:
     """Kappa t along strike (largest faults) and per-fault kappa t against maximum throw.
@@ -118,28 +123,36 @@ def degradation_figure(faults, stations, *, n_largest: int = 4, pixel_size_m: fl
     m = (fl == "measured") & np.isfinite(mt) & (mt > 0)
     u = (fl == "upper_bound") & np.isfinite(mt) & (mt > 0) & np.isfinite(fb)
     lo = (fl == "lower_bound") & np.isfinite(mt) & (mt > 0) & np.isfinite(fb)
+    # at regional size (thousands of faults) small translucent markers, and error bars on the
+    # largest faults only, keep the cloud readable
+    dense = int(m.sum() + u.sum() + lo.sum()) > _DENSE_POINTS
+    ms, alpha = (1.8, 0.4) if dense else (4.0, 1.0)
+    bars = m.copy()
+    if dense and m.sum() > _ERROR_BARS_MAX:
+        keep = np.flatnonzero(m)[np.argsort(-mt[m])[:_ERROR_BARS_MAX]]
+        bars = np.zeros_like(m)
+        bars[keep] = True
     if m.any():
-        ax2.errorbar(
-            mt[m],
-            fk[m],
-            yerr=np.nan_to_num(fe[m]),
-            fmt="o",
-            ms=4,
-            color="tab:blue",
-            lw=0.8,
-            label="measured (\u00b11\u03c3)",
-        )
+        ax2.plot(mt[m], fk[m], "o", ms=ms, color="tab:blue", alpha=alpha, rasterized=dense,
+                 label="measured" if dense else "measured (\u00b11\u03c3)")
+        ax2.errorbar(mt[bars], fk[bars], yerr=np.nan_to_num(fe[bars]), fmt="none", ecolor="tab:blue", lw=0.8,
+                     label=(f"\u00b11\u03c3 on the {int(bars.sum())} largest" if dense else None))
     if u.any():
-        ax2.plot(mt[u], fb[u], "v", ms=5, color="tab:gray", label="upper bound (fresher than)")
+        ax2.plot(mt[u], fb[u], "v", ms=ms + 1, color="tab:gray", alpha=alpha, rasterized=dense,
+                 label="upper bound (fresher than)")
     if lo.any():
-        ax2.plot(mt[lo], fb[lo], "^", ms=5, color="tab:red", label="lower bound (broader than the profiles)")
+        ax2.plot(mt[lo], fb[lo], "^", ms=ms + 1, color="tab:red", alpha=alpha, rasterized=dense,
+                 label="lower bound (broader than the profiles)")
     ax2.set_xlabel("maximum throw (m)")
     ax2.set_ylabel("\u03bat (m\u00b2)")
     ax2.set_title("per-fault \u03bat against throw", fontsize=10)
     if m.any() or u.any() or lo.any():
         ax2.set_xscale("log")
         ax2.set_yscale("log")
-        ax2.legend(fontsize=7, loc="best")
+        if dense:  # below the axes: a legend over a cloud of thousands of points hides it
+            ax2.legend(fontsize=7, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=2, markerscale=2.5)
+        else:
+            ax2.legend(fontsize=7, loc="best")
     else:
         ax2.text(0.5, 0.5, "no fault with a kappa t", transform=ax2.transAxes, ha="center")
     fig.suptitle(
