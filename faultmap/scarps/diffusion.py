@@ -15,7 +15,10 @@ is that of the oldest event, the age of the offset surface.
 profile matrix together: a few candidate widths with the linear parameters
 solved in closed form, then damped Gauss-Newton steps (Levenberg-Marquardt)
 on all five, batched over the rows, with Tukey biweights against gullies
-and vegetation. No loop runs per profile; the cost is linear in samples.
+and vegetation. This array code is the reference; when the compiled kernels
+are on (:mod:`faultmap.numerics.jit`) the same fit runs row by row in
+:func:`faultmap.scarps.diffusion_jit.fit_rows`, in small fixed-size arrays
+(agreeing to rounding). Either way the cost is linear in samples.
 """
 
 from __future__ import annotations
@@ -24,6 +27,8 @@ import math
 
 import numpy as np
 from scipy.special import erf
+
+from faultmap.numerics import jit
 
 __all__ = [
     "scarp_shape",
@@ -179,6 +184,7 @@ def fit_diffusion_profiles(
     tuning: float = 4.685,
     x0_max_m=None,
     s_bounds_m=(1e-3, 1e6),
+    use_jit: bool = True,
 ):
     """Fit the diffusion scarp model to many profiles at once.
 
@@ -203,6 +209,9 @@ def fit_diffusion_profiles(
         quarter of the window).
     s_bounds_m : (float, float)
         Limits of the width, m.
+    use_jit : bool
+        Run the compiled kernel (:func:`faultmap.scarps.diffusion_jit.fit_rows`)
+        when the kernels are on; ``False`` runs this array code, the reference.
 
     Returns
     -------
@@ -223,6 +232,8 @@ def fit_diffusion_profiles(
     """
     Z = np.asarray(Z, dtype=float)
     m, N = Z.shape
+    if use_jit and jit.ENABLED:
+        return _fit_compiled(x_m, Z, s0_m, n_events, iterations, robust, tuning, x0_max_m, s_bounds_m)
     X = np.broadcast_to(np.asarray(x_m, dtype=float), (m, N))
     W0 = np.isfinite(Z).astype(float)
     Zf = np.where(W0 > 0, Z, 0.0)
@@ -318,3 +329,29 @@ def fit_diffusion_profiles(
         "rmse_m": rmse,
         "n_used": W0.sum(1),
     }
+
+
+def _fit_compiled(x_m, Z, s0_m, n_events, iterations, robust, tuning, x0_max_m, s_bounds_m):
+    """Run :func:`faultmap.scarps.diffusion_jit.fit_rows` and return the reference's dict."""
+    from faultmap.scarps.diffusion_jit import OUT_FIELDS, fit_rows
+
+    m, N = Z.shape
+    x = np.asarray(x_m, dtype=float)
+    X = x.reshape(1, N) if x.ndim == 1 else np.ascontiguousarray(np.broadcast_to(x, (m, N)))
+    s0 = np.asarray(s0_m, dtype=float) * np.ones(m)
+    x0max = (
+        np.full(m, np.nan) if x0_max_m is None else np.broadcast_to(np.asarray(x0_max_m, float), (m,)).copy()
+    )
+    out = fit_rows(
+        X,
+        np.ascontiguousarray(Z),
+        s0,
+        _roots(n_events),
+        int(iterations),
+        bool(robust),
+        float(tuning),
+        x0max,
+        float(s_bounds_m[0]),
+        float(s_bounds_m[1]),
+    )
+    return {k: out[:, i].copy() for i, k in enumerate(OUT_FIELDS)}

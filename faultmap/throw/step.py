@@ -542,10 +542,13 @@ def compiled_on_disk() -> bool | None:
     (:func:`faultmap.numerics.jit.compiled_on_disk`).
     """
     # kernels of every compiled module the step runs
+    from faultmap.scarps.diffusion_jit import fit_rows  # the scarp degradation fit (on by default)
     from faultmap.throw.profiles_jit import _bilinear_rows
     from faultmap.throw.robust_lines_jit import _converge
     from faultmap.throw.scarp_fit_jit import _gradients
     from faultmap.throw.smoothing_jit import _cv_choice, _final_fit
     from faultmap.throw.stations_jit import _grid_query
 
-    return jit.compiled_on_disk((_bilinear_rows, _gradients, _cv_choice, _final_fit, _converge, _grid_query))
+    return jit.compiled_on_disk(
+        (_bilinear_rows, _gradients, _cv_choice, _final_fit, _converge, _grid_query, fit_rows)
+    )
