@@ -136,9 +136,10 @@ def _inverse_diag(H, work, col, k):  # pragma: no cover
 
 
 @_jit
-def _evaluate(p, x, zf, valid, roots, F, dF, u, r):  # pragma: no cover
-    """Shape, derivative, scaled distance and residual of every valid sample at parameters p."""
+def _evaluate(p, x, zf, valid, roots, W, F, dF, u, r):  # pragma: no cover
+    """Shape, derivative, scaled distance and residual of every valid sample at p; the weighted misfit."""
     s = math.exp(p[4])
+    ssr = 0.0
     for j in range(x.size):
         if valid[j]:
             uj = (x[j] - p[3]) / s
@@ -146,12 +147,16 @@ def _evaluate(p, x, zf, valid, roots, F, dF, u, r):  # pragma: no cover
             u[j] = uj
             F[j] = f
             dF[j] = d
-            r[j] = zf[j] - p[0] - p[1] * x[j] - p[2] * f
+            rj = zf[j] - p[0] - p[1] * x[j] - p[2] * f
+            r[j] = rj
+            if W[j] != 0.0:
+                ssr += W[j] * rj * rj
         else:
             u[j] = 0.0
             F[j] = 0.0
             dF[j] = 0.0
             r[j] = 0.0
+    return ssr
 
 
 @_jit
@@ -370,12 +375,16 @@ def fit_rows(X, Z, s0, roots, iterations, robust, tuning, x0max_in, s_lo, s_hi):
         for j in range(N):
             W[j] = W0[j]
         lam = 1e-3
-        _evaluate(p, x, zf, valid, roots, F, dF, u, r)
+        ssr = _evaluate(p, x, zf, valid, roots, W, F, dF, u, r)
+        fresh = False  # whether H and g hold the normal equations at p with the weights W
         for it in range(iterations):
             if robust and (it == 2 or it == 4):
                 _tukey(r, valid, tuning, W, buf)
-            ssr = _ssr(W, r)
-            _normal(p, x, W, F, dF, u, r, H, g)
+                ssr = _ssr(W, r)
+                fresh = False
+            if not fresh:  # (a rejected step leaves p, W and so H and g as they were)
+                _normal(p, x, W, F, dF, u, r, H, g)
+                fresh = True
             for a in range(5):
                 for c in range(5):
                     Hd[a, c] = H[a, c]
@@ -392,15 +401,16 @@ def fit_rows(X, Z, s0, roots, iterations, robust, tuning, x0max_in, s_lo, s_hi):
                 trial[a] = p[a] + step[a]
             trial[3] = min(max(trial[3], -x0m), x0m)
             trial[4] = min(max(trial[4], ln_lo), ln_hi)
-            _evaluate(trial, x, zf, valid, roots, Ft, dFt, ut, rt)
-            if _ssr(W, rt) <= ssr:
+            ssr_t = _evaluate(trial, x, zf, valid, roots, W, Ft, dFt, ut, rt)
+            if ssr_t <= ssr:  # keep the step: the trial's arrays become the current ones
                 for a in range(5):
                     p[a] = trial[a]
-                for j in range(N):
-                    F[j] = Ft[j]
-                    dF[j] = dFt[j]
-                    u[j] = ut[j]
-                    r[j] = rt[j]
+                F, Ft = Ft, F
+                dF, dFt = dFt, dF
+                u, ut = ut, u
+                r, rt = rt, r
+                ssr = ssr_t
+                fresh = False
                 lam = lam * 0.3
             else:
                 lam = lam * 10.0
