@@ -15,6 +15,7 @@ Usage::
     python benchmarks/bench_degradation.py              # 4000 x 4000 px, 1500 faults
     python benchmarks/bench_degradation.py --small      # 1500 x 1500 px, 200 faults
     python benchmarks/bench_degradation.py --reference  # also the numpy reference path
+    python benchmarks/bench_degradation.py --pixels 8000 --faults 4000 --reference
 """
 
 from __future__ import annotations
@@ -42,8 +43,11 @@ def main() -> None:
     ap.add_argument("--small", action="store_true", help="1500 x 1500 px, 200 faults")
     ap.add_argument("--reference", action="store_true", help="also time the numpy reference of the fit")
     ap.add_argument("--rounds", type=int, default=ROUNDS)
+    ap.add_argument("--pixels", type=int, help="pixels a side (default 4000)")
+    ap.add_argument("--faults", type=int, help="faults (default 1500)")
     a = ap.parse_args()
     n_pix, n_faults = (1500, 200) if a.small else (4000, 1500)
+    n_pix, n_faults = a.pixels or n_pix, a.faults or n_faults
 
     import geopandas as gpd
 

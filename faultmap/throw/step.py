@@ -536,7 +536,7 @@ def measure_throw(
 def compiled_on_disk() -> bool | None:
     """Whether numba's on-disk cache already holds the throw step's compiled kernels.
 
-    ``False`` means the next run compiles them (about 13 s, once per
+    ``False`` means the next run compiles them (about 18 s, once per
     environment); ``None`` when it cannot tell (numba's cache layout is not
     a public interface). Always ``True`` when the kernels are disabled
     (:func:`faultmap.numerics.jit.compiled_on_disk`).

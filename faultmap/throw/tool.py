@@ -110,7 +110,7 @@ def run(ctx, p: dict) -> None:
     from faultmap.throw import step
 
     if step.compiled_on_disk() is False:
-        ctx.info("first run in this environment: compiling faultmap's kernels (about 13 s, once).")
+        ctx.info("first run in this environment: compiling faultmap's kernels (about 18 s, once).")
     res = measure_throw(faults, dem, params=params, mapper=mapper, progress=progress, min_batches=min_batches)
     for w in res.warnings:
         ctx.warn(w)
@@ -441,7 +441,7 @@ TOOL = Tool(
             bool,
             True,
             "Fit the diffusion form of a degraded scarp (kappa t) to every station's profile, on the samples the "
-            "throw fit already read (adds about three quarters to the time of the throw step).",
+            "throw fit already read (about doubles the time of the throw step on a regional scene).",
         ),
         Param(
             "n_events",
