@@ -13,8 +13,7 @@ import math
 import geopandas as gpd
 import numpy as np
 import pytest
-import rasterio
-from rasterio.transform import from_origin
+from conftest import write_dem
 from scipy.special import erf
 from scipy.stats import spearmanr
 from shapely.geometry import LineString
@@ -28,20 +27,7 @@ EXTENT = 800.0
 
 
 def _write(path, z, px, y0=EXTENT):
-    with rasterio.open(
-        path,
-        "w",
-        driver="GTiff",
-        width=z.shape[1],
-        height=z.shape[0],
-        count=1,
-        dtype="float32",
-        crs=CRS,
-        transform=from_origin(0.0, y0, px, px),
-        nodata=-9999.0,
-    ) as ds:
-        ds.write(np.asarray(z, dtype="float32"), 1)
-    return path
+    return write_dem(path, z, crs=CRS, x0=0.0, y0=y0, px=px)
 
 
 def _erf_scene(tmp_path, *, px, kappa_t, offset=4.0, noise=0.02, seed=0, events=1):
