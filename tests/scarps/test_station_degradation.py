@@ -13,7 +13,6 @@ import math
 import geopandas as gpd
 import numpy as np
 import pytest
-from conftest import write_dem
 from scipy.special import erf
 from scipy.stats import spearmanr
 from shapely.geometry import LineString
@@ -21,6 +20,7 @@ from shapely.geometry import LineString
 from faultmap.io.dem import open_dem
 from faultmap.synthetic import build_dem
 from faultmap.throw.step import measure_throw
+from tests.conftest import write_dem
 
 CRS = "EPSG:32633"
 EXTENT = 800.0
