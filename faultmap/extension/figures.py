@@ -109,9 +109,9 @@ def extension_map_figure(
     else:
         ax.text(0.5, 0.5, "no extension measured", transform=ax.transAxes, ha="center", va="center", fontsize=_FONT)
     if "n_default_dip" in cells.columns and (cells["n_default_dip"].to_numpy() > 0).any():
-        ax.text(0.01, 0.99, "some faults use the default dip (dip_source = default)", transform=ax.transAxes,
+        ax.text(0.02, 0.975, "some faults use the default dip (dip_source = default)", transform=ax.transAxes,
                 fontsize=_FONT - 2, va="top", ha="left", color="0.2",
-                bbox={"facecolor": "white", "alpha": 0.7, "edgecolor": "none"})
+                bbox={"facecolor": "white", "alpha": 0.7, "edgecolor": "none", "pad": 2.0})
     bounds = []
     for g in (cells, faults, transects):
         if g is not None and len(g):
