@@ -51,6 +51,7 @@ from faultmap.extension.transect_geometry import (
     _local_azimuth,
     _transect_lines,
 )
+from faultmap.numerics.dip_ranges import dip_draw_bounds
 
 __all__ = ["measure_transects", "ZONE_CHOICES"]
 
@@ -390,7 +391,8 @@ def measure_transects(
         # a fault's own dip range (a database's "50-70" or "(50,60,70)", read by prepare) replaces +- half
         own_lo = _col(faults, "dip_min_deg", np.nan)[uf]
         own_hi = _col(faults, "dip_max_deg", np.nan)[uf]
-        own = np.isfinite(own_lo) & np.isfinite(own_hi) & (own_hi >= own_lo)
+        own = np.isfinite(own_lo) | np.isfinite(own_hi)
+        lo_own, hi_own = dip_draw_bounds(dip_f[uf], half, own_lo, own_hi, min_dip_deg=_DIP_MIN_DEG)
         nvc = int(valid.sum())
         agg = sparse.csr_matrix((np.ones(nvc), (tv, np.arange(nvc))), shape=(nt, nvc))
         cm_v, cs_v, k_v = cm_abs[valid], cs[valid], ss_k[valid]
@@ -403,7 +405,7 @@ def measure_transects(
             u = rng.uniform(-1.0, 1.0, size=(len(uf), k))
             dips = np.where(
                 own[:, None],
-                own_lo[:, None] + (own_hi - own_lo)[:, None] * (0.5 * (u + 1.0)),
+                lo_own[:, None] + (hi_own - lo_own)[:, None] * (0.5 * (u + 1.0)),
                 dip_f[uf][:, None] + half[:, None] * u,
             )
             dips = np.clip(dips, _DIP_MIN_DEG, 90.0)[f_inv]

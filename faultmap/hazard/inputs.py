@@ -14,6 +14,7 @@ import pandas as pd
 import shapely
 
 from faultmap.errors import InputError, ParameterError
+from faultmap.numerics.dip_ranges import dip_draw_bounds
 
 __all__ = ["select_faults", "rates_from_field"]
 
@@ -206,11 +207,9 @@ def rates_from_field(
     rows = np.flatnonzero(use)
     if rows.size == 0:
         return out, 0, warns
-    dip = _col(out, "dip_deg")[rows]
-    dlo = _col(out, "dip_min_deg")[rows]
-    dhi = _col(out, "dip_max_deg")[rows]
-    dlo = np.where(np.isfinite(dlo), dlo, np.clip(dip - dip_range_deg, 1.0, 90.0))
-    dhi = np.where(np.isfinite(dhi), dhi, np.clip(dip + dip_range_deg, 1.0, 90.0))
+    dlo, dhi = dip_draw_bounds(
+        _col(out, "dip_deg")[rows], dip_range_deg, _col(out, "dip_min_deg")[rows], _col(out, "dip_max_deg")[rows]
+    )
     ev = _col(out, "event_displacement_m")[rows]
     rng = np.random.default_rng(seed + 2)
     pct = {k: np.full((3, rows.size), np.nan) for k in ("net", "vert", "horiz", "rec")}

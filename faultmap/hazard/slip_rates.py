@@ -17,6 +17,7 @@ from scipy import special
 from faultmap.errors import InputError, ParameterError
 from faultmap.hazard.inputs import _col, _compact, _ids_text, _require, _selected, morphologic_age_fallback
 from faultmap.hazard.magnitudes import displacement_from_magnitude, get_relation, range_warnings
+from faultmap.numerics.dip_ranges import dip_draw_bounds
 
 __all__ = ["slip_rate_draws", "slip_rates"]
 
@@ -88,18 +89,13 @@ def _draw_chunks(
     a = -loc / scale
     cv = np.where(np.isfinite(aerr) & (aerr > 0), aerr / age, 0.0)
     s_ln = np.sqrt(np.log1p(cv**2))
-    lo = np.clip(dip - dip_range_deg, 1.0, 90.0)
-    hi = np.clip(dip + dip_range_deg, 1.0, 90.0)
-    # a fault's own dip range (a database's "50-70" or "(50,60,70)", read by prepare) replaces the
-    # +- dip_range_deg where given
-    if dip_min_deg is not None:
-        own = np.asarray(dip_min_deg, float)[:, None]
-        lo = np.where(np.isfinite(own), np.clip(own, 1.0, 90.0), lo)
-    if dip_max_deg is not None:
-        own = np.asarray(dip_max_deg, float)[:, None]
-        hi = np.where(np.isfinite(own), np.clip(own, 1.0, 90.0), hi)
-    lo = np.minimum(lo, dip)
-    hi = np.maximum(hi, dip)
+    # a fault's own dip range (a database's "50-70", read by prepare) replaces +- dip_range_deg
+    lo, hi = dip_draw_bounds(
+        dip,
+        dip_range_deg,
+        None if dip_min_deg is None else np.asarray(dip_min_deg, float)[:, None],
+        None if dip_max_deg is None else np.asarray(dip_max_deg, float)[:, None],
+    )
 
     # the three streams of one generator: uniforms (one 64-bit output each), then normals (a variable
     # number of outputs each: found by drawing them once), then uniforms

@@ -1,6 +1,7 @@
 """Shared mathematics used by several analyses.
 
-Shared mathematics: axial (doubled-angle) directions and the hillshade of a DEM array;
+Shared mathematics: axial (doubled-angle) directions, the hillshade of a DEM array and the
+dip intervals of Monte Carlo draws;
 :mod:`faultmap.numerics.jit` holds the numba setup shared by the compiled kernels.
 
 Each public name below is imported from its module on first use, so reading the
@@ -14,6 +15,7 @@ _EXPORTS = {
     "segment_azimuths": "directions",
     "axial_mean_deg": "directions",
     "axial_resultant_length": "directions",
+    "dip_draw_bounds": "dip_ranges",
 }
 __all__ = list(_EXPORTS)
 __getattr__, __dir__ = lazy_exports(__name__, globals(), _EXPORTS)
